@@ -1,0 +1,439 @@
+//! Decoding: bytes → [`Raster`]. Limits are checked from the header before any
+//! large allocation; decoder panics are contained; integer samples map to
+//! `[0, 1]` exactly (`code / max`); EXIF orientation is applied unless asked not to.
+
+use std::io::Cursor;
+use std::panic::{AssertUnwindSafe, catch_unwind};
+use std::str::FromStr;
+
+use image::{DynamicImage, ImageDecoder, ImageReader};
+
+use super::format::Format;
+use super::{exif, jpeg_markers};
+use crate::error::Error;
+use crate::ops::geometry::Move;
+use crate::raster::{Encoding, Layout, Metadata, Plane, Raster, Resolution, ResolutionUnit, SampleType};
+
+/// Bounds on what one decode may take.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Limits {
+    /// Largest `width × height` accepted.
+    pub max_pixels: u64,
+    /// Largest buffer a decoder may allocate for the decoded samples, in bytes;
+    /// also the largest input file read.
+    pub max_bytes: u64,
+}
+
+impl Limits {
+    /// 2²⁸ pixels (268 million; e.g. 16384 × 16384) — room for large scans and
+    /// stitched micrographs — and 4 GiB of decoded samples.
+    pub const DEFAULT: Limits = Limits { max_pixels: 1 << 28, max_bytes: 4 << 30 };
+
+    fn check(&self, format: Format, width: u64, height: u64, bytes: u64) -> Result<(), Error> {
+        let pixels = width.saturating_mul(height);
+        if width == 0 || height == 0 {
+            return Err(Error::Decode {
+                format: format.name(),
+                reason: format!("the header gives a size of {width}×{height}"),
+            });
+        }
+        if pixels > self.max_pixels {
+            return Err(Error::Limit(format!(
+                "image is {width}×{height} = {pixels} pixels, over the limit of {} pixels",
+                self.max_pixels
+            )));
+        }
+        if bytes > self.max_bytes {
+            return Err(Error::Limit(format!(
+                "decoding needs {bytes} bytes, over the limit of {} bytes",
+                self.max_bytes
+            )));
+        }
+        Ok(())
+    }
+}
+
+impl Default for Limits {
+    fn default() -> Self {
+        Limits::DEFAULT
+    }
+}
+
+/// What the numbers in the input mean.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum InputEncoding {
+    /// Float sources are linear; integer sources are sRGB.
+    #[default]
+    Auto,
+    Srgb,
+    Linear,
+}
+
+impl InputEncoding {
+    pub const NAMES: [&'static str; 3] = ["auto", "srgb", "linear"];
+
+    fn resolve(self, sample: SampleType) -> Encoding {
+        match (self, sample) {
+            (InputEncoding::Srgb, _) => Encoding::Srgb,
+            (InputEncoding::Linear, _) | (InputEncoding::Auto, SampleType::F32) => Encoding::Linear,
+            (InputEncoding::Auto, _) => Encoding::Srgb,
+        }
+    }
+}
+
+impl FromStr for InputEncoding {
+    type Err = String;
+
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        match s {
+            "auto" => Ok(InputEncoding::Auto),
+            "srgb" => Ok(InputEncoding::Srgb),
+            "linear" => Ok(InputEncoding::Linear),
+            _ => Err(format!("unknown input encoding `{s}`; expected one of {}", Self::NAMES.join(", "))),
+        }
+    }
+}
+
+/// How to decode.
+#[derive(Clone, Copy, Debug, Default)]
+pub struct DecodeOptions {
+    pub limits: Limits,
+    pub encoding: InputEncoding,
+    /// Leave pixels as stored and keep the EXIF orientation (default: make them upright).
+    pub keep_orientation: bool,
+}
+
+/// Decodes one image (the first page or frame). The format comes from the bytes.
+pub fn decode(bytes: &[u8], opts: &DecodeOptions) -> Result<Raster, Error> {
+    let format = Format::detect(bytes).ok_or_else(|| {
+        Error::Unsupported(format!(
+            "not an image format Pumice reads (first bytes {}); it reads PNG, JPEG, TIFF, WebP, BMP, GIF and OpenEXR",
+            hex_prefix(bytes)
+        ))
+    })?;
+    let decoded = catch_unwind(AssertUnwindSafe(|| match format {
+        Format::Png => decode_png(bytes, &opts.limits),
+        Format::Tiff => decode_tiff(bytes, &opts.limits),
+        _ => decode_generic(bytes, format, &opts.limits),
+    }))
+    .map_err(|_| Error::Decode {
+        format: format.name(),
+        reason: "the decoder failed on malformed data".into(),
+    })??;
+    let Decoded { mut raster, sample, orientation } = decoded;
+    raster.encoding = opts.encoding.resolve(sample);
+    raster.levels = sample.max_code();
+    raster.metadata.source_sample = Some(sample);
+    let stored =
+        orientation.or_else(|| raster.metadata.exif.as_deref().and_then(exif::orientation)).unwrap_or(1);
+    if opts.keep_orientation || stored == 1 {
+        raster.metadata.orientation = stored;
+        Ok(raster)
+    } else {
+        let mut upright = match orientation_move(stored) {
+            Some(m) => m.apply_raster(raster)?,
+            None => raster,
+        };
+        upright.metadata.orientation = 1;
+        Ok(upright)
+    }
+}
+
+/// The move that makes an image stored with EXIF orientation `o` upright.
+/// EXIF 2.32 (CIPA DC-008) §4.6.4 A, Orientation: where the 0th row and 0th
+/// column of the stored image lie in the visual image.
+pub fn orientation_move(o: u16) -> Option<Move> {
+    match o {
+        2 => Some(Move::FlipHorizontal), // 0th row top, 0th column right
+        3 => Some(Move::Rotate180),      // bottom, right
+        4 => Some(Move::FlipVertical),   // bottom, left
+        5 => Some(Move::Transpose),      // left, top
+        6 => Some(Move::RotateCw),       // right, top
+        7 => Some(Move::Transverse),     // right, bottom
+        8 => Some(Move::RotateCcw),      // left, bottom
+        _ => None,
+    }
+}
+
+struct Decoded {
+    raster: Raster,
+    sample: SampleType,
+    /// An orientation the container itself records (TIFF tag 274).
+    orientation: Option<u16>,
+}
+
+fn hex_prefix(bytes: &[u8]) -> String {
+    if bytes.is_empty() {
+        return "none: the file is empty".into();
+    }
+    bytes.iter().take(8).map(|b| format!("{b:02x}")).collect::<Vec<_>>().join(" ")
+}
+
+/// Samples of one interleaved buffer.
+enum Samples<'a> {
+    U8(&'a [u8]),
+    U16(Vec<u16>),
+    F32(&'a [f32]),
+}
+
+/// Splits interleaved samples into planes, mapping integer codes to `code / max`.
+fn planar(width: usize, height: usize, layout: Layout, samples: Samples<'_>) -> Result<Raster, Error> {
+    let n = layout.channels();
+    let len = width * height;
+    let planes = (0..n)
+        .map(|c| {
+            let data: Vec<f32> = match &samples {
+                Samples::U8(s) => {
+                    s.iter().skip(c).step_by(n).take(len).map(|&v| f32::from(v) / 255.0).collect()
+                }
+                Samples::U16(s) => {
+                    s.iter().skip(c).step_by(n).take(len).map(|&v| f32::from(v) / 65535.0).collect()
+                }
+                Samples::F32(s) => s.iter().skip(c).step_by(n).take(len).copied().collect(),
+            };
+            if data.len() != len {
+                return Err(Error::Decode {
+                    format: "image",
+                    reason: "the decoder returned too few samples".into(),
+                });
+            }
+            Plane::from_vec(width, height, data)
+        })
+        .collect::<Result<Vec<_>, _>>()?;
+    Raster::new(planes, layout, Encoding::Srgb)
+}
+
+fn layout_for(channels: usize) -> Option<Layout> {
+    Some(match channels {
+        1 => Layout::Gray,
+        2 => Layout::GrayAlpha,
+        3 => Layout::Rgb,
+        4 => Layout::Rgba,
+        _ => return None,
+    })
+}
+
+fn png_error(e: png::DecodingError) -> Error {
+    match e {
+        png::DecodingError::LimitsExceeded => Error::Limit("PNG data exceed the memory limit".into()),
+        other => Error::Decode { format: "PNG", reason: other.to_string() },
+    }
+}
+
+fn decode_png(bytes: &[u8], limits: &Limits) -> Result<Decoded, Error> {
+    let png_limits = png::Limits { bytes: usize::try_from(limits.max_bytes).unwrap_or(usize::MAX) };
+    let mut decoder = png::Decoder::new_with_limits(Cursor::new(bytes), png_limits);
+    // Palettes and bit depths below 8 expand to 8-bit; tRNS becomes alpha; 16-bit stays 16-bit.
+    decoder.set_transformations(png::Transformations::EXPAND);
+    decoder.set_ignore_text_chunk(true);
+    let (w, h) = {
+        let info = decoder.read_header_info().map_err(png_error)?;
+        (info.width, info.height)
+    };
+    limits.check(Format::Png, u64::from(w), u64::from(h), u64::from(w) * u64::from(h) * 8)?;
+    let mut reader = decoder.read_info().map_err(png_error)?;
+    let size = reader
+        .output_buffer_size()
+        .ok_or_else(|| Error::Limit("PNG frame is too large to address".into()))?;
+    let mut buf = vec![0u8; size];
+    let frame = reader.next_frame(&mut buf).map_err(png_error)?;
+    reader.finish().map_err(png_error)?;
+    let layout = layout_for(frame.color_type.samples())
+        .ok_or_else(|| Error::Decode { format: "PNG", reason: "unexpected colour type".into() })?;
+    let (width, height) = (frame.width as usize, frame.height as usize);
+    buf.truncate(frame.buffer_size());
+    let (samples, sample) = match frame.bit_depth {
+        png::BitDepth::Sixteen => (
+            Samples::U16(buf.chunks_exact(2).map(|b| u16::from_be_bytes([b[0], b[1]])).collect()),
+            SampleType::U16,
+        ),
+        _ => (Samples::U8(&buf), SampleType::U8),
+    };
+    let mut raster = planar(width, height, layout, samples)?;
+    let info = reader.info();
+    raster.metadata = Metadata {
+        icc_profile: info.icc_profile.as_ref().map(|c| c.to_vec()),
+        exif: info.exif_metadata.as_ref().map(|c| c.to_vec()),
+        resolution: info.pixel_dims.and_then(|d| match d.unit {
+            // pHYs in pixels per metre (PNG 3rd ed. §11.3.5.3); kept exact as pixels per centimetre.
+            png::Unit::Meter => Some(Resolution {
+                x: f64::from(d.xppu) / 100.0,
+                y: f64::from(d.yppu) / 100.0,
+                unit: ResolutionUnit::Centimetre,
+            }),
+            png::Unit::Unspecified => {
+                Some(Resolution { x: f64::from(d.xppu), y: f64::from(d.yppu), unit: ResolutionUnit::None })
+            }
+        }),
+        ..Metadata::default()
+    };
+    Ok(Decoded { raster, sample, orientation: None })
+}
+
+fn tiff_error(e: tiff::TiffError) -> Error {
+    match e {
+        tiff::TiffError::LimitsExceeded => Error::Limit("TIFF data exceed the memory limit".into()),
+        tiff::TiffError::UnsupportedError(u) => Error::Unsupported(format!("TIFF: {u}")),
+        other => Error::Decode { format: "TIFF", reason: other.to_string() },
+    }
+}
+
+fn decode_tiff(bytes: &[u8], limits: &Limits) -> Result<Decoded, Error> {
+    use tiff::ColorType as C;
+    use tiff::decoder::{DecodingResult, Limits as TiffLimits};
+    use tiff::tags::Tag;
+
+    let mut tl = TiffLimits::default();
+    tl.decoding_buffer_size = usize::try_from(limits.max_bytes).unwrap_or(usize::MAX);
+    tl.ifd_value_size = 64 << 20; // ICC profiles and EXIF blocks can pass the 1 MiB default
+    let mut d = tiff::decoder::Decoder::new(Cursor::new(bytes)).map_err(tiff_error)?.with_limits(tl);
+    let (w, h) = d.dimensions().map_err(tiff_error)?;
+    let colour = d.colortype().map_err(tiff_error)?;
+    let channels = match colour {
+        C::Gray(_) => 1,
+        C::GrayA(_) => 2,
+        C::RGB(_) => 3,
+        C::RGBA(_) => 4,
+        other => {
+            return Err(Error::Unsupported(format!(
+                "TIFF colour type {other:?}; Pumice reads gray and RGB, with or without alpha"
+            )));
+        }
+    };
+    let bits = u64::from(colour.bit_depth()).max(8);
+    limits.check(
+        Format::Tiff,
+        u64::from(w),
+        u64::from(h),
+        u64::from(w) * u64::from(h) * channels * bits / 8,
+    )?;
+    let layout = layout_for(channels as usize).unwrap_or(Layout::Gray);
+    // PhotometricInterpretation 0 (WhiteIsZero, TIFF 6.0 §3): gray codes run from white.
+    let white_is_zero = d.find_tag_unsigned::<u16>(Tag::PhotometricInterpretation).ok().flatten() == Some(0);
+    let orientation =
+        d.find_tag_unsigned::<u16>(Tag::Orientation).ok().flatten().filter(|o| (1..=8).contains(o));
+    let icc_profile = d.get_tag_u8_vec(Tag::IccProfile).ok();
+    let resolution = tiff_resolution(&mut d);
+    let (width, height) = (w as usize, h as usize);
+    let result = d.read_image().map_err(tiff_error)?;
+    let (mut raster, sample) = match result {
+        DecodingResult::U8(s) => (planar(width, height, layout, Samples::U8(&s))?, SampleType::U8),
+        DecodingResult::U16(s) => (planar(width, height, layout, Samples::U16(s))?, SampleType::U16),
+        DecodingResult::F32(s) => (planar(width, height, layout, Samples::F32(&s))?, SampleType::F32),
+        _ => {
+            return Err(Error::Unsupported(format!(
+                "TIFF with {} bits per sample of this type; Pumice reads 8- and 16-bit unsigned and 32-bit float",
+                colour.bit_depth()
+            )));
+        }
+    };
+    if white_is_zero && layout.colour_channels() == 1 {
+        raster.planes_mut()[0].as_mut_slice().iter_mut().for_each(|v| *v = 1.0 - *v);
+    }
+    raster.metadata = Metadata { icc_profile, resolution, ..Metadata::default() };
+    Ok(Decoded { raster, sample, orientation })
+}
+
+/// XResolution, YResolution and ResolutionUnit (TIFF 6.0 §8: 1 none, 2 inch, 3 cm).
+fn tiff_resolution<R: std::io::Read + std::io::Seek>(
+    d: &mut tiff::decoder::Decoder<R>,
+) -> Option<Resolution> {
+    use tiff::decoder::ifd::Value;
+    use tiff::tags::Tag;
+    let rational = |v: Value| match v {
+        Value::Rational(n, den) if den != 0 => Some(f64::from(n) / f64::from(den)),
+        other => other.into_f64().ok(),
+    };
+    let x = rational(d.find_tag(Tag::XResolution).ok()??)?;
+    let y = rational(d.find_tag(Tag::YResolution).ok()??)?;
+    let unit = match d.find_tag_unsigned::<u16>(Tag::ResolutionUnit).ok().flatten().unwrap_or(2) {
+        1 => ResolutionUnit::None,
+        3 => ResolutionUnit::Centimetre,
+        _ => ResolutionUnit::Inch,
+    };
+    (x > 0.0 && y > 0.0 && x.is_finite() && y.is_finite()).then_some(Resolution { x, y, unit })
+}
+
+fn image_error(format: Format, e: image::ImageError) -> Error {
+    match e {
+        image::ImageError::Limits(l) => Error::Limit(format!("{}: {l}", format.name())),
+        image::ImageError::Unsupported(u) => Error::Unsupported(format!("{}: {u}", format.name())),
+        other => Error::Decode { format: format.name(), reason: other.to_string() },
+    }
+}
+
+fn decode_generic(bytes: &[u8], format: Format, limits: &Limits) -> Result<Decoded, Error> {
+    let image_format = match format {
+        Format::Jpeg => image::ImageFormat::Jpeg,
+        Format::Webp => image::ImageFormat::WebP,
+        Format::Bmp => image::ImageFormat::Bmp,
+        Format::Gif => image::ImageFormat::Gif,
+        Format::Exr => image::ImageFormat::OpenExr,
+        Format::Png | Format::Tiff => {
+            return Err(Error::Internal("PNG and TIFF have their own decoders".into()));
+        }
+    };
+    let err = |e| image_error(format, e);
+    let mut decoder =
+        ImageReader::with_format(Cursor::new(bytes), image_format).into_decoder().map_err(err)?;
+    let (w, h) = decoder.dimensions();
+    limits.check(format, u64::from(w), u64::from(h), decoder.total_bytes())?;
+    let mut il = image::Limits::default();
+    il.max_alloc = Some(limits.max_bytes);
+    decoder.set_limits(il).map_err(err)?;
+    let icc_profile = decoder.icc_profile().ok().flatten();
+    let exif = decoder.exif_metadata().ok().flatten();
+    let img = DynamicImage::from_decoder(decoder).map_err(err)?;
+    let (width, height) = (w as usize, h as usize);
+    let (raster, sample) = match img {
+        DynamicImage::ImageLuma8(b) => {
+            (planar(width, height, Layout::Gray, Samples::U8(b.as_raw()))?, SampleType::U8)
+        }
+        DynamicImage::ImageLumaA8(b) => {
+            (planar(width, height, Layout::GrayAlpha, Samples::U8(b.as_raw()))?, SampleType::U8)
+        }
+        DynamicImage::ImageRgb8(b) => {
+            (planar(width, height, Layout::Rgb, Samples::U8(b.as_raw()))?, SampleType::U8)
+        }
+        DynamicImage::ImageRgba8(b) => {
+            (planar(width, height, Layout::Rgba, Samples::U8(b.as_raw()))?, SampleType::U8)
+        }
+        DynamicImage::ImageRgb32F(b) => {
+            (planar(width, height, Layout::Rgb, Samples::F32(b.as_raw()))?, SampleType::F32)
+        }
+        DynamicImage::ImageRgba32F(b) => {
+            (planar(width, height, Layout::Rgba, Samples::F32(b.as_raw()))?, SampleType::F32)
+        }
+        other => {
+            let b = other.into_rgba32f();
+            (planar(width, height, Layout::Rgba, Samples::F32(b.as_raw()))?, SampleType::F32)
+        }
+    };
+    let mut raster = raster;
+    let resolution = if format == Format::Jpeg { jpeg_markers::read(bytes).resolution } else { None };
+    raster.metadata = Metadata { icc_profile, exif, resolution, ..Metadata::default() };
+    Ok(Decoded { raster, sample, orientation: None })
+}
+
+#[cfg(test)]
+mod tests {
+    //! Edge cases: empty input, unknown signature, headers over the pixel limit.
+    use super::*;
+
+    #[test]
+    fn empty_and_unknown_bytes_are_clear_errors() {
+        let e = decode(&[], &DecodeOptions::default()).unwrap_err().to_string();
+        assert!(e.contains("empty"), "{e}");
+        let e = decode(b"hello world", &DecodeOptions::default()).unwrap_err().to_string();
+        assert!(e.contains("68 65 6c"), "{e}");
+    }
+
+    #[test]
+    fn limits_refuse_before_allocating() {
+        let l = Limits { max_pixels: 100, max_bytes: 1000 };
+        assert!(l.check(Format::Png, 10, 10, 400).is_ok());
+        assert!(matches!(l.check(Format::Png, 11, 10, 400), Err(Error::Limit(_))));
+        assert!(matches!(l.check(Format::Png, 10, 10, 4000), Err(Error::Limit(_))));
+        assert!(matches!(l.check(Format::Png, 0, 10, 0), Err(Error::Decode { .. })));
+    }
+}

@@ -1,0 +1,156 @@
+//! Run options: how inputs are read and outputs written, as a recipe file or the
+//! command line gives them. Parsing of the small value types lives here too.
+
+use crate::io::{Chroma, Format, InputEncoding, Limits};
+use crate::pipeline::DomainPolicy;
+use crate::raster::SampleType;
+
+/// Everything about a run except its steps.
+#[derive(Clone, Debug, PartialEq)]
+pub struct RunOptions {
+    pub input_encoding: InputEncoding,
+    /// The output sample type; `None` keeps the source's (see [`Format::default_sample`]).
+    pub sample: Option<SampleType>,
+    pub keep_metadata: bool,
+    /// The output format; `None` takes it from the output file's extension.
+    pub format: Option<Format>,
+    pub quality: u8,
+    pub chroma: Chroma,
+    pub domain: DomainPolicy,
+    /// sRGB-encoded colour that alpha is flattened onto for formats without alpha.
+    pub background: [f32; 3],
+    pub keep_orientation: bool,
+    pub limits: Limits,
+}
+
+impl Default for RunOptions {
+    fn default() -> Self {
+        RunOptions {
+            input_encoding: InputEncoding::Auto,
+            sample: None,
+            keep_metadata: true,
+            format: None,
+            quality: 90,
+            chroma: Chroma::default(),
+            domain: DomainPolicy::Auto,
+            background: [1.0, 1.0, 1.0],
+            keep_orientation: false,
+            limits: Limits::DEFAULT,
+        }
+    }
+}
+
+/// Option values a recipe or the command line may set; unset ones keep what
+/// was there (defaults, then recipe, then command line).
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct OptionOverrides {
+    pub input_encoding: Option<InputEncoding>,
+    pub sample: Option<Option<SampleType>>,
+    pub keep_metadata: Option<bool>,
+    pub format: Option<Format>,
+    pub quality: Option<u8>,
+    pub chroma: Option<Chroma>,
+    pub domain: Option<DomainPolicy>,
+    pub background: Option<[f32; 3]>,
+}
+
+impl OptionOverrides {
+    /// Writes every set value into `options`.
+    pub fn apply_to(&self, options: &mut RunOptions) {
+        if let Some(v) = self.input_encoding {
+            options.input_encoding = v;
+        }
+        if let Some(v) = self.sample {
+            options.sample = v;
+        }
+        if let Some(v) = self.keep_metadata {
+            options.keep_metadata = v;
+        }
+        if let Some(v) = self.format {
+            options.format = Some(v);
+        }
+        if let Some(v) = self.quality {
+            options.quality = v;
+        }
+        if let Some(v) = self.chroma {
+            options.chroma = v;
+        }
+        if let Some(v) = self.domain {
+            options.domain = v;
+        }
+        if let Some(v) = self.background {
+            options.background = v;
+        }
+    }
+}
+
+/// Output depth names: `source` keeps the source's.
+pub const DEPTH_NAMES: [&str; 4] = ["source", "8", "16", "f32"];
+
+/// Parses an output depth; `source` is `None`.
+pub fn parse_depth(s: &str) -> Result<Option<SampleType>, String> {
+    match s {
+        "source" => Ok(None),
+        "8" => Ok(Some(SampleType::U8)),
+        "16" => Ok(Some(SampleType::U16)),
+        "f32" => Ok(Some(SampleType::F32)),
+        _ => Err(format!("unknown depth `{s}`; expected one of {}", DEPTH_NAMES.join(", "))),
+    }
+}
+
+/// Metadata policy names.
+pub const META_NAMES: [&str; 2] = ["keep", "drop"];
+
+/// Parses a metadata policy: `keep` is true.
+pub fn parse_meta(s: &str) -> Result<bool, String> {
+    match s {
+        "keep" => Ok(true),
+        "drop" => Ok(false),
+        _ => Err(format!("unknown metadata policy `{s}`; expected one of {}", META_NAMES.join(", "))),
+    }
+}
+
+/// Parses an output format name as `--format` takes it.
+pub fn parse_format(s: &str) -> Result<Format, String> {
+    match Format::from_extension(s) {
+        Some(f) if f.deepest_sample().is_some() => Ok(f),
+        _ => Err(format!("unknown output format `{s}`; expected one of {}", Format::WRITE_NAMES.join(", "))),
+    }
+}
+
+/// Parses a colour: `white`, `black`, `gray` (sRGB 0.5) or `#rrggbb`, as
+/// sRGB-encoded values in `[0, 1]`.
+pub fn parse_colour(s: &str) -> Result<[f32; 3], String> {
+    let bad = || format!("unknown colour `{s}`; expected white, black, gray or #rrggbb");
+    match s {
+        "white" => Ok([1.0; 3]),
+        "black" => Ok([0.0; 3]),
+        "gray" | "grey" => Ok([0.5; 3]),
+        _ => {
+            let hex = s.strip_prefix('#').filter(|h| h.len() == 6 && h.is_ascii()).ok_or_else(bad)?;
+            let mut out = [0.0; 3];
+            for (i, o) in out.iter_mut().enumerate() {
+                let v = u8::from_str_radix(&hex[2 * i..2 * i + 2], 16).map_err(|_| bad())?;
+                *o = f32::from(v) / 255.0;
+            }
+            Ok(out)
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn small_values_parse() {
+        assert_eq!(parse_depth("16"), Ok(Some(SampleType::U16)));
+        assert!(parse_depth("12").unwrap_err().contains("source, 8, 16, f32"));
+        assert_eq!(parse_colour("#ff8000"), Ok([1.0, 128.0 / 255.0, 0.0]));
+        assert!(parse_colour("#ff80").is_err());
+        assert!(parse_colour("#ffé000").is_err());
+        assert_eq!(parse_format("tif"), Ok(Format::Tiff));
+        assert!(parse_format("gif").is_err());
+        assert_eq!(parse_meta("drop"), Ok(false));
+    }
+}

@@ -1,0 +1,19 @@
+//! Pumice: a colour-correct, bit-depth-preserving raster image processor.
+//!
+//! An image is decoded ([`io::decode`]) into a [`raster::Raster`] of planar
+//! `f32` channels, run through a [`pipeline::Pipeline`] of operators
+//! ([`ops`]) over row bands on every core ([`tile`]), and encoded
+//! ([`io::encode`]). [`job`] ties these together for one input and one output;
+//! everything the command line does is callable from here.
+
+pub mod color;
+pub mod error;
+pub mod io;
+pub mod job;
+pub mod ops;
+pub mod pipeline;
+pub mod raster;
+mod suggest;
+pub mod tile;
+
+pub use error::Error;

@@ -1,0 +1,118 @@
+//! Operators: one module per family. Each operator is a small struct built from
+//! checked parameters, declaring the domain its maths is right in. Operators
+//! transform rasters; they do not read files, print or know about the command line.
+
+pub mod colour;
+pub mod filter;
+pub mod geometry;
+pub mod params;
+pub mod tone;
+
+use crate::error::Error;
+use crate::raster::{Plane, Raster};
+use crate::tile;
+
+/// The encoding an operator's maths assumes.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Domain {
+    /// Mixes light: needs values proportional to light.
+    Linear,
+    /// Works on perceptual (sRGB-encoded) values.
+    Encoded,
+    /// Moves samples without mixing them: right in any encoding.
+    Any,
+}
+
+impl Domain {
+    pub fn name(self) -> &'static str {
+        match self {
+            Domain::Linear => "linear light",
+            Domain::Encoded => "encoded (perceptual) values",
+            Domain::Any => "any (samples are moved, not mixed)",
+        }
+    }
+}
+
+/// One step of a pipeline.
+pub trait Operator: Send + Sync {
+    /// The domain the operator's maths is right in.
+    fn domain(&self) -> Domain;
+
+    /// True when every output sample is a copy of an input sample (crops,
+    /// flips, quarter turns), so exactness facts about the values carry over.
+    fn moves_samples_only(&self) -> bool {
+        false
+    }
+
+    /// The per-sample function, for operators whose output sample depends only
+    /// on the input sample at the same place in the same colour plane. The
+    /// pipeline fuses consecutive ones into a single pass over memory.
+    fn sample_map(&self) -> Option<&dyn SampleMap> {
+        None
+    }
+
+    /// Runs the operator.
+    fn apply(&self, raster: Raster) -> Result<Raster, Error>;
+}
+
+/// A function applied to each colour sample independently (alpha untouched).
+pub trait SampleMap: Send + Sync {
+    /// Maps every sample of `samples` in place.
+    fn map(&self, samples: &mut [f32]);
+}
+
+/// Samples per chunk when point functions run in parallel: 256 KiB of `f32`,
+/// small enough to stay in L2 while several fused functions pass over it.
+pub const POINT_CHUNK: usize = 1 << 16;
+
+/// Applies `maps`, in order, to every colour sample of `raster` in one pass
+/// per chunk of memory.
+pub fn apply_sample_maps(mut raster: Raster, maps: &[&dyn SampleMap]) -> Raster {
+    if !maps.is_empty() {
+        tile::for_each_chunk(raster.colour_planes_mut(), POINT_CHUNK, |chunk| {
+            for m in maps {
+                m.map(chunk);
+            }
+        });
+    }
+    raster
+}
+
+/// Runs `filter` on every plane of `raster`, with alpha handled the way
+/// neighbourhood operators need: colour is premultiplied by alpha before
+/// filtering and divided by the filtered alpha afterwards (zero where the
+/// filtered alpha is zero), so transparent pixels do not bleed their colour.
+pub fn filter_planes(
+    raster: Raster,
+    filter: impl Fn(&Plane) -> Result<Plane, Error> + Sync,
+) -> Result<Raster, Error> {
+    let layout = raster.layout();
+    let colour = layout.colour_channels();
+    let mut planes = raster.planes().to_vec();
+    if layout.has_alpha() {
+        let (colour_planes, alpha) = planes.split_at_mut(colour);
+        for p in colour_planes.iter_mut() {
+            multiply_in_place(p, &alpha[0]);
+        }
+    }
+    let mut filtered = planes.iter().map(&filter).collect::<Result<Vec<_>, _>>()?;
+    if layout.has_alpha() {
+        let (colour_planes, alpha) = filtered.split_at_mut(colour);
+        for p in colour_planes.iter_mut() {
+            divide_in_place(p, &alpha[0]);
+        }
+    }
+    raster.with_planes(filtered, layout)
+}
+
+fn multiply_in_place(p: &mut Plane, alpha: &Plane) {
+    for (v, a) in p.as_mut_slice().iter_mut().zip(alpha.as_slice()) {
+        *v *= a;
+    }
+}
+
+fn divide_in_place(p: &mut Plane, alpha: &Plane) {
+    for (v, a) in p.as_mut_slice().iter_mut().zip(alpha.as_slice()) {
+        *v = if *a > 0.0 { *v / a } else { 0.0 };
+    }
+}

@@ -1,0 +1,54 @@
+//! The operator registry: every operator Pumice knows, by name. Adding an
+//! operator means writing its module under `ops/` and adding one line here.
+
+use crate::error::Error;
+use crate::ops::params::OpSpec;
+use crate::ops::{colour, filter, geometry, tone};
+
+/// Every operator, in the order `pumice ops` lists them (by family).
+pub static OPERATORS: &[&OpSpec] = &[
+    &filter::GAUSS,
+    &filter::CONVOLVE,
+    &geometry::CROP,
+    &geometry::FLIP,
+    &geometry::ROTATE,
+    &geometry::TRANSPOSE,
+    &tone::INVERT,
+    &tone::GAMMA,
+    &colour::GRAY,
+];
+
+/// The operator called `name`, or an error suggesting the nearest name.
+pub fn find(name: &str) -> Result<&'static OpSpec, Error> {
+    OPERATORS.iter().copied().find(|s| s.name == name).ok_or_else(|| {
+        let hint = crate::suggest::nearest(name, OPERATORS.iter().map(|s| s.name))
+            .map(|s| format!("did you mean `{s}`? "))
+            .unwrap_or_default();
+        Error::Step {
+            step: name.to_string(),
+            message: format!("unknown operator `{name}`; {hint}`pumice ops` lists them all"),
+        }
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn names_are_unique_and_documented() {
+        for (i, a) in OPERATORS.iter().enumerate() {
+            assert!(OPERATORS[i + 1..].iter().all(|b| b.name != a.name), "{} twice", a.name);
+            assert!(a.doc.contains("Domain"), "{} doc names no domain", a.name);
+            if let Some(main) = a.main {
+                assert!(a.params.iter().any(|p| p.name == main), "{}: main `{main}` not a parameter", a.name);
+            }
+        }
+    }
+
+    #[test]
+    fn unknown_names_get_a_suggestion() {
+        let e = find("guass").unwrap_err().to_string();
+        assert!(e.contains("did you mean `gauss`?"), "{e}");
+    }
+}

@@ -1,0 +1,235 @@
+//! The in-memory image: planar `f32` channels, what the numbers mean (layout and
+//! encoding) and the metadata carried from the source. No codec or operator logic.
+
+mod plane;
+pub mod transform;
+
+pub use plane::Plane;
+
+use crate::error::Error;
+
+/// Which channels a raster holds, in storage order.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Layout {
+    Gray,
+    GrayAlpha,
+    Rgb,
+    Rgba,
+}
+
+impl Layout {
+    /// Number of planes, alpha included.
+    pub fn channels(self) -> usize {
+        match self {
+            Layout::Gray => 1,
+            Layout::GrayAlpha => 2,
+            Layout::Rgb => 3,
+            Layout::Rgba => 4,
+        }
+    }
+
+    /// Number of colour planes (alpha excluded): 1 or 3.
+    pub fn colour_channels(self) -> usize {
+        match self {
+            Layout::Gray | Layout::GrayAlpha => 1,
+            Layout::Rgb | Layout::Rgba => 3,
+        }
+    }
+
+    pub fn has_alpha(self) -> bool {
+        matches!(self, Layout::GrayAlpha | Layout::Rgba)
+    }
+
+    /// The layout with the same colour planes and alpha present or not.
+    pub fn with_alpha(self, alpha: bool) -> Layout {
+        match (self.colour_channels(), alpha) {
+            (1, false) => Layout::Gray,
+            (1, true) => Layout::GrayAlpha,
+            (_, false) => Layout::Rgb,
+            (_, true) => Layout::Rgba,
+        }
+    }
+
+    pub fn name(self) -> &'static str {
+        match self {
+            Layout::Gray => "gray",
+            Layout::GrayAlpha => "gray+alpha",
+            Layout::Rgb => "rgb",
+            Layout::Rgba => "rgba",
+        }
+    }
+}
+
+/// How sample values relate to light.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Encoding {
+    /// Proportional to light (scene-linear or display-linear).
+    Linear,
+    /// Encoded with the IEC 61966-2-1 sRGB transfer function.
+    Srgb,
+}
+
+impl Encoding {
+    pub fn name(self) -> &'static str {
+        match self {
+            Encoding::Linear => "linear",
+            Encoding::Srgb => "srgb",
+        }
+    }
+}
+
+/// The sample type of a file: integer types map to `[0, 1]` on decode.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum SampleType {
+    U8,
+    U16,
+    F32,
+}
+
+impl SampleType {
+    /// The largest integer code, or `None` for floating point.
+    pub fn max_code(self) -> Option<u32> {
+        match self {
+            SampleType::U8 => Some(255),
+            SampleType::U16 => Some(65535),
+            SampleType::F32 => None,
+        }
+    }
+
+    pub fn name(self) -> &'static str {
+        match self {
+            SampleType::U8 => "8-bit",
+            SampleType::U16 => "16-bit",
+            SampleType::F32 => "32-bit float",
+        }
+    }
+}
+
+/// The unit of a resolution value.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum ResolutionUnit {
+    /// Pixels per inch.
+    Inch,
+    /// Pixels per centimetre.
+    Centimetre,
+    /// No unit: the values give only the pixel aspect ratio.
+    None,
+}
+
+/// Pixel density, horizontally and vertically, in `unit`.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Resolution {
+    pub x: f64,
+    pub y: f64,
+    pub unit: ResolutionUnit,
+}
+
+impl Resolution {
+    /// Pixels per metre (what PNG's `pHYs` stores), or `None` without a unit.
+    pub fn per_metre(&self) -> Option<(f64, f64)> {
+        // 1 inch = 0.0254 m exactly (international yard and pound agreement, 1959).
+        match self.unit {
+            ResolutionUnit::Inch => Some((self.x / 0.0254, self.y / 0.0254)),
+            ResolutionUnit::Centimetre => Some((self.x * 100.0, self.y * 100.0)),
+            ResolutionUnit::None => None,
+        }
+    }
+
+    /// The same density with x and y exchanged (after a quarter turn or transpose).
+    pub fn swapped(self) -> Resolution {
+        Resolution { x: self.y, y: self.x, unit: self.unit }
+    }
+}
+
+/// What was carried from the source file.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct Metadata {
+    /// The embedded ICC profile, byte for byte.
+    pub icc_profile: Option<Vec<u8>>,
+    /// The EXIF block as a TIFF structure (starting `II*\0` or `MM\0*`).
+    pub exif: Option<Vec<u8>>,
+    /// The EXIF orientation (1–8) the pixels are stored in: 1 once decode made them upright.
+    pub orientation: u16,
+    pub resolution: Option<Resolution>,
+    /// The sample type the source file stored, if it came from a file.
+    pub source_sample: Option<SampleType>,
+}
+
+/// An image: 1–4 planes of equal size, their layout and encoding, and metadata.
+///
+/// Invariants (checked by [`Raster::new`]): the number of planes matches the
+/// layout and every plane has the same width and height.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Raster {
+    planes: Vec<Plane>,
+    layout: Layout,
+    /// The encoding of the colour planes; alpha is always linear coverage.
+    pub encoding: Encoding,
+    pub metadata: Metadata,
+    /// `Some(n)` when every colour sample is known to be an exact multiple of
+    /// `1/n` (an untouched 8- or 16-bit source), so transfer functions may use
+    /// lookup tables indexed by the integer code.
+    pub levels: Option<u32>,
+}
+
+impl Raster {
+    pub fn new(planes: Vec<Plane>, layout: Layout, encoding: Encoding) -> Result<Self, Error> {
+        if planes.len() != layout.channels() {
+            return Err(Error::Internal(format!(
+                "layout {} needs {} planes, got {}",
+                layout.name(),
+                layout.channels(),
+                planes.len()
+            )));
+        }
+        let (w, h) = (planes[0].width(), planes[0].height());
+        if planes.iter().any(|p| p.width() != w || p.height() != h) {
+            return Err(Error::Internal("planes of one raster differ in size".into()));
+        }
+        Ok(Raster { planes, layout, encoding, metadata: Metadata::default(), levels: None })
+    }
+
+    pub fn width(&self) -> usize {
+        self.planes[0].width()
+    }
+
+    pub fn height(&self) -> usize {
+        self.planes[0].height()
+    }
+
+    pub fn layout(&self) -> Layout {
+        self.layout
+    }
+
+    pub fn planes(&self) -> &[Plane] {
+        &self.planes
+    }
+
+    pub fn planes_mut(&mut self) -> &mut [Plane] {
+        &mut self.planes
+    }
+
+    /// The colour planes (alpha excluded).
+    pub fn colour_planes_mut(&mut self) -> &mut [Plane] {
+        let n = self.layout.colour_channels();
+        &mut self.planes[..n]
+    }
+
+    /// The alpha plane, if there is one.
+    pub fn alpha(&self) -> Option<&Plane> {
+        self.layout.has_alpha().then(|| &self.planes[self.planes.len() - 1])
+    }
+
+    /// Replaces the planes (and layout) while keeping encoding and metadata.
+    pub fn with_planes(self, planes: Vec<Plane>, layout: Layout) -> Result<Raster, Error> {
+        let mut out = Raster::new(planes, layout, self.encoding)?;
+        out.metadata = self.metadata;
+        out.levels = self.levels;
+        Ok(out)
+    }
+
+    /// Consumes the raster and returns its planes.
+    pub fn into_planes(self) -> Vec<Plane> {
+        self.planes
+    }
+}

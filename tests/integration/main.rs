@@ -1,0 +1,6 @@
+//! The integration test binary: runs the real `pumice` binary and the library
+//! against images made in the tests and against committed reference fixtures.
+
+mod harness;
+
+mod cli;

@@ -289,11 +289,16 @@ fn decode_tiff(bytes: &[u8], limits: &Limits) -> Result<Decoded, Error> {
     let mut d = tiff::decoder::Decoder::new(Cursor::new(bytes)).map_err(tiff_error)?.with_limits(tl);
     let (w, h) = d.dimensions().map_err(tiff_error)?;
     let colour = d.colortype().map_err(tiff_error)?;
+    // PhotometricInterpretation (TIFF 6.0 §3, §6): 0 WhiteIsZero, 1 BlackIsZero, 2 RGB.
+    let photometric = d.find_tag_unsigned::<u16>(Tag::PhotometricInterpretation).ok().flatten();
     let channels = match colour {
         C::Gray(_) => 1,
         C::GrayA(_) => 2,
         C::RGB(_) => 3,
         C::RGBA(_) => 4,
+        // Gray or RGB with one extra sample (alpha), as some writers store it.
+        C::Multiband { num_samples: 2, .. } if matches!(photometric, Some(0 | 1)) => 2,
+        C::Multiband { num_samples: 4, .. } if photometric == Some(2) => 4,
         other => {
             return Err(Error::Unsupported(format!(
                 "TIFF colour type {other:?}; Pumice reads gray and RGB, with or without alpha"
@@ -308,8 +313,8 @@ fn decode_tiff(bytes: &[u8], limits: &Limits) -> Result<Decoded, Error> {
         u64::from(w) * u64::from(h) * channels * bits / 8,
     )?;
     let layout = layout_for(channels as usize).unwrap_or(Layout::Gray);
-    // PhotometricInterpretation 0 (WhiteIsZero, TIFF 6.0 §3): gray codes run from white.
-    let white_is_zero = d.find_tag_unsigned::<u16>(Tag::PhotometricInterpretation).ok().flatten() == Some(0);
+    // WhiteIsZero: gray codes run from white.
+    let white_is_zero = photometric == Some(0);
     let orientation =
         d.find_tag_unsigned::<u16>(Tag::Orientation).ok().flatten().filter(|o| (1..=8).contains(o));
     let icc_profile = d.get_tag_u8_vec(Tag::IccProfile).ok();

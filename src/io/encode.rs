@@ -365,8 +365,8 @@ fn interleave_f32(raster: &Raster, file: Encoding) -> Vec<f32> {
 
 /// Writes a TIFF with Deflate compression (horizontal predictor for integers),
 /// the ICC profile (tag 34675), resolution (tags 282, 283, 296) and a non-upright
-/// orientation (tag 274). Gray with alpha is written as RGBA, which the encoder
-/// supports; EXIF is not written.
+/// orientation (tag 274). Alpha is an extra sample marked unassociated
+/// (ExtraSamples = 2, TIFF 6.0 §18), as Pumice stores it. EXIF is not written.
 fn encode_tiff(
     raster: &Raster,
     sample: SampleType,
@@ -375,14 +375,7 @@ fn encode_tiff(
     resolution: Option<Resolution>,
 ) -> Result<Vec<u8>, tiff::TiffError> {
     use tiff::encoder::{Compression, DeflateLevel, Predictor, TiffEncoder, colortype};
-    let expanded;
-    let raster = if raster.layout() == Layout::GrayAlpha {
-        expanded = expand_gray(raster)
-            .map_err(|e| tiff::TiffError::IoError(std::io::Error::other(e.to_string())))?;
-        &expanded
-    } else {
-        raster
-    };
+    use tiff::tags::ExtraSamples;
     let (w, h) = (raster.width() as u32, raster.height() as u32);
     let mut out = Cursor::new(Vec::new());
     let predictor = if sample == SampleType::F32 { Predictor::None } else { Predictor::Horizontal };
@@ -390,11 +383,17 @@ fn encode_tiff(
         .with_compression(Compression::Deflate(DeflateLevel::Fast))
         .with_predictor(predictor);
     let orientation = raster.metadata.orientation;
+    let alpha = raster.layout().has_alpha();
 
     macro_rules! write {
         ($ct:ty, $data:expr) => {{
             let data = $data;
             let mut image = enc.new_image::<$ct>(w, h)?;
+            if alpha {
+                image
+                    .encoder()
+                    .write_tag(tiff::tags::Tag::ExtraSamples, ExtraSamples::UnassociatedAlpha.to_u16())?;
+            }
             if let Some(icc) = &icc {
                 image.encoder().write_tag(tiff::tags::Tag::IccProfile, &icc[..])?;
             }
@@ -419,14 +418,88 @@ fn encode_tiff(
         (Layout::Gray, SampleType::U8) => write!(colortype::Gray8, interleave_u8(raster, file)),
         (Layout::Gray, SampleType::U16) => write!(colortype::Gray16, interleave_u16(raster, file)),
         (Layout::Gray, SampleType::F32) => write!(colortype::Gray32Float, interleave_f32(raster, file)),
+        (Layout::GrayAlpha, SampleType::U8) => {
+            write!(tiff_gray_alpha::GrayAlpha8, interleave_u8(raster, file))
+        }
+        (Layout::GrayAlpha, SampleType::U16) => {
+            write!(tiff_gray_alpha::GrayAlpha16, interleave_u16(raster, file))
+        }
+        (Layout::GrayAlpha, SampleType::F32) => {
+            write!(tiff_gray_alpha::GrayAlpha32Float, interleave_f32(raster, file))
+        }
         (Layout::Rgb, SampleType::U8) => write!(colortype::RGB8, interleave_u8(raster, file)),
         (Layout::Rgb, SampleType::U16) => write!(colortype::RGB16, interleave_u16(raster, file)),
         (Layout::Rgb, SampleType::F32) => write!(colortype::RGB32Float, interleave_f32(raster, file)),
-        (_, SampleType::U8) => write!(colortype::RGBA8, interleave_u8(raster, file)),
-        (_, SampleType::U16) => write!(colortype::RGBA16, interleave_u16(raster, file)),
-        (_, SampleType::F32) => write!(colortype::RGBA32Float, interleave_f32(raster, file)),
+        (Layout::Rgba, SampleType::U8) => write!(colortype::RGBA8, interleave_u8(raster, file)),
+        (Layout::Rgba, SampleType::U16) => write!(colortype::RGBA16, interleave_u16(raster, file)),
+        (Layout::Rgba, SampleType::F32) => write!(colortype::RGBA32Float, interleave_f32(raster, file)),
     }
     Ok(out.into_inner())
+}
+
+/// Gray-with-alpha sample layouts for the TIFF encoder, which has none of its
+/// own. (Its extra-sample route predicts across the two samples of a pixel as
+/// if they were one, which readers then undo wrongly.)
+mod tiff_gray_alpha {
+    use tiff::encoder::colortype::ColorType;
+    use tiff::tags::{PhotometricInterpretation, SampleFormat};
+
+    /// Horizontal differencing (TIFF 6.0 §14) over pixels of two samples.
+    fn predict<T: Copy + Sub>(row: &[T], result: &mut Vec<T>) {
+        result.extend_from_slice(&row[..row.len().min(2)]);
+        result.extend(row.iter().zip(row.iter().skip(2)).map(|(prev, cur)| cur.wrapping_minus(*prev)));
+    }
+
+    /// Wrapping subtraction, for the predictor.
+    pub trait Sub {
+        fn wrapping_minus(self, other: Self) -> Self;
+    }
+
+    impl Sub for u8 {
+        fn wrapping_minus(self, other: Self) -> Self {
+            self.wrapping_sub(other)
+        }
+    }
+
+    impl Sub for u16 {
+        fn wrapping_minus(self, other: Self) -> Self {
+            self.wrapping_sub(other)
+        }
+    }
+
+    pub struct GrayAlpha8;
+    impl ColorType for GrayAlpha8 {
+        type Inner = u8;
+        const TIFF_VALUE: PhotometricInterpretation = PhotometricInterpretation::BlackIsZero;
+        const BITS_PER_SAMPLE: &'static [u16] = &[8, 8];
+        const SAMPLE_FORMAT: &'static [SampleFormat] = &[SampleFormat::Uint; 2];
+        fn horizontal_predict(row: &[u8], result: &mut Vec<u8>) {
+            predict(row, result)
+        }
+    }
+
+    pub struct GrayAlpha16;
+    impl ColorType for GrayAlpha16 {
+        type Inner = u16;
+        const TIFF_VALUE: PhotometricInterpretation = PhotometricInterpretation::BlackIsZero;
+        const BITS_PER_SAMPLE: &'static [u16] = &[16, 16];
+        const SAMPLE_FORMAT: &'static [SampleFormat] = &[SampleFormat::Uint; 2];
+        fn horizontal_predict(row: &[u16], result: &mut Vec<u16>) {
+            predict(row, result)
+        }
+    }
+
+    pub struct GrayAlpha32Float;
+    impl ColorType for GrayAlpha32Float {
+        type Inner = f32;
+        const TIFF_VALUE: PhotometricInterpretation = PhotometricInterpretation::BlackIsZero;
+        const BITS_PER_SAMPLE: &'static [u16] = &[32, 32];
+        const SAMPLE_FORMAT: &'static [SampleFormat] = &[SampleFormat::IEEEFP; 2];
+        /// Float data are written without a predictor, so this only copies.
+        fn horizontal_predict(row: &[f32], result: &mut Vec<f32>) {
+            result.extend_from_slice(row);
+        }
+    }
 }
 
 /// A TIFF RATIONAL for `v`: exact for whole numbers, else to 1/10000.

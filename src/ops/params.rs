@@ -41,13 +41,13 @@ impl Kind {
     pub fn describe(&self) -> String {
         match self {
             Kind::Number { min, max, min_open, integer } => {
-                let what = if *integer { "integer" } else { "number" };
+                let what = if *integer { "a whole number" } else { "a number" };
                 let lo = if *min_open { "(" } else { "[" };
                 format!("{what} in {lo}{min}, {max}]")
             }
             Kind::Bool => "true or false".into(),
-            Kind::Choice(c) => c.join(" | "),
-            Kind::Matrix => "matrix: numbers separated by spaces, rows by `;`".into(),
+            Kind::Choice(c) => format!("one of {}", c.join(" | ")),
+            Kind::Matrix => "a matrix (numbers separated by spaces, rows by `;`)".into(),
         }
     }
 }

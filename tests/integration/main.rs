@@ -4,3 +4,5 @@
 mod harness;
 
 mod cli;
+mod codecs;
+mod orientation;

@@ -6,3 +6,4 @@ mod harness;
 mod cli;
 mod codecs;
 mod orientation;
+mod reference;

@@ -88,14 +88,14 @@ pub fn filter_planes(
 ) -> Result<Raster, Error> {
     let layout = raster.layout();
     let colour = layout.colour_channels();
-    let mut planes = raster.planes().to_vec();
+    let mut raster = raster;
     if layout.has_alpha() {
-        let (colour_planes, alpha) = planes.split_at_mut(colour);
+        let (colour_planes, alpha) = raster.planes_mut().split_at_mut(colour);
         for p in colour_planes.iter_mut() {
             multiply_in_place(p, &alpha[0]);
         }
     }
-    let mut filtered = planes.iter().map(&filter).collect::<Result<Vec<_>, _>>()?;
+    let mut filtered = raster.planes().iter().map(&filter).collect::<Result<Vec<_>, _>>()?;
     if layout.has_alpha() {
         let (colour_planes, alpha) = filtered.split_at_mut(colour);
         for p in colour_planes.iter_mut() {

@@ -59,7 +59,7 @@ pub fn correlate_separable(src: &Plane, kx: &[f32], ky: &[f32], border: Border) 
         b => b,
     };
     let const_row = vec![border.constant_value(); w];
-    let mut out = src.clone();
+    let mut out = Plane::zeros(w, h).unwrap_or_else(|_| unreachable!("same size as a valid plane"));
     tile::for_each_band(&mut out, tile::band_rows(w, ry), |y0, band| {
         let mut acc = vec![0.0f32; w];
         let mut padded = vec![0.0f32; w + 2 * rx];
@@ -70,17 +70,16 @@ pub fn correlate_separable(src: &Plane, kx: &[f32], ky: &[f32], border: Border) 
             horizontal(&padded, kx, out_row);
         }
     });
-    debug_assert_eq!(out.height(), h);
     out
 }
 
 /// Correlates `src` with the `kh × kw` kernel `k` (row-major, both sides odd)
 /// directly: `kh · kw` row passes per output row.
 pub fn correlate_2d(src: &Plane, k: &[f32], kw: usize, kh: usize, border: Border) -> Plane {
-    let w = src.width();
+    let (w, h) = (src.width(), src.height());
     let (rx, ry) = (kw / 2, kh / 2);
     let const_row = vec![border.constant_value(); w];
-    let mut out = src.clone();
+    let mut out = Plane::zeros(w, h).unwrap_or_else(|_| unreachable!("same size as a valid plane"));
     tile::for_each_band(&mut out, tile::band_rows(w, ry), |y0, band| {
         let mut padded = vec![0.0f32; w + 2 * rx];
         for (i, out_row) in band.chunks_exact_mut(w).enumerate() {

@@ -1,0 +1,101 @@
+#!/usr/bin/env python3
+"""Times reference libraries on the workloads of `cargo bench --bench throughput`.
+
+Called by the benchmark with the image it generated, so both measure the same
+data in the same run. Prints one JSON object: workload name -> median seconds.
+
+Workloads (4000x3000 RGB):
+  gauss-2, gauss-8   scipy.ndimage.gaussian_filter (float32 planes, truncate=4,
+                     mode='reflect') and cv2.GaussianBlur (float32, ksize 2r+1 with
+                     r = floor(4*sigma + 0.5), BORDER_REFLECT), 2 threads for OpenCV.
+  jpeg-decode, jpeg-encode   cv2.imdecode / cv2.imencode (quality 90) and
+                     Pillow Image.open().load() / Image.save(quality=90).
+  png-decode, png-encode     the same for PNG at a fast deflate level
+                     (cv2.IMWRITE_PNG_COMPRESSION=1, Pillow compress_level=1).
+"""
+import argparse
+import io
+import json
+import statistics
+import sys
+import time
+
+
+def median_time(fn, repeats):
+    times = []
+    for _ in range(repeats):
+        t = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - t)
+    return statistics.median(times)
+
+
+def main():
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--png", required=True)
+    ap.add_argument("--jpeg", required=True)
+    ap.add_argument("--repeats", type=int, default=5)
+    args = ap.parse_args()
+
+    out = {}
+    import numpy as np
+
+    png_bytes = open(args.png, "rb").read()
+    jpeg_bytes = open(args.jpeg, "rb").read()
+
+    try:
+        import cv2
+
+        cv2.setNumThreads(2)
+        buf_png = np.frombuffer(png_bytes, np.uint8)
+        buf_jpg = np.frombuffer(jpeg_bytes, np.uint8)
+        img = cv2.imdecode(buf_png, cv2.IMREAD_COLOR)
+        f32 = img.astype(np.float32) / 255.0
+        out["cv2.jpeg-decode"] = median_time(lambda: cv2.imdecode(buf_jpg, cv2.IMREAD_COLOR), args.repeats)
+        out["cv2.jpeg-encode"] = median_time(
+            lambda: cv2.imencode(".jpg", img, [cv2.IMWRITE_JPEG_QUALITY, 90]), args.repeats)
+        out["cv2.png-decode"] = median_time(lambda: cv2.imdecode(buf_png, cv2.IMREAD_COLOR), args.repeats)
+        out["cv2.png-encode"] = median_time(
+            lambda: cv2.imencode(".png", img, [cv2.IMWRITE_PNG_COMPRESSION, 1]), args.repeats)
+        for sigma in (2, 8):
+            r = int(4 * sigma + 0.5)
+            out[f"cv2.gauss-{sigma}"] = median_time(
+                lambda: cv2.GaussianBlur(f32, (2 * r + 1, 2 * r + 1), sigma, borderType=cv2.BORDER_REFLECT),
+                args.repeats)
+    except ImportError as e:
+        print(f"reference: OpenCV unavailable ({e})", file=sys.stderr)
+
+    try:
+        from scipy import ndimage
+        from PIL import Image
+
+        rgb = np.asarray(Image.open(io.BytesIO(png_bytes)).convert("RGB"))
+        planes = [np.ascontiguousarray(rgb[..., c], dtype=np.float32) / 255.0 for c in range(3)]
+        for sigma in (2, 8):
+            out[f"scipy.gauss-{sigma}"] = median_time(
+                lambda: [ndimage.gaussian_filter(p, sigma, truncate=4.0, mode="reflect") for p in planes],
+                max(1, args.repeats // 2))
+    except ImportError as e:
+        print(f"reference: scipy unavailable ({e})", file=sys.stderr)
+
+    try:
+        from PIL import Image
+
+        def pil_decode(data):
+            im = Image.open(io.BytesIO(data))
+            im.load()
+            return im
+
+        im = pil_decode(png_bytes).convert("RGB")
+        out["pillow.jpeg-decode"] = median_time(lambda: pil_decode(jpeg_bytes), args.repeats)
+        out["pillow.jpeg-encode"] = median_time(lambda: im.save(io.BytesIO(), "JPEG", quality=90), args.repeats)
+        out["pillow.png-decode"] = median_time(lambda: pil_decode(png_bytes), args.repeats)
+        out["pillow.png-encode"] = median_time(lambda: im.save(io.BytesIO(), "PNG", compress_level=1), args.repeats)
+    except ImportError as e:
+        print(f"reference: Pillow unavailable ({e})", file=sys.stderr)
+
+    json.dump(out, sys.stdout)
+
+
+if __name__ == "__main__":
+    main()

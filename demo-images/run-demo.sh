@@ -1,0 +1,27 @@
+#!/usr/bin/env bash
+# Runs the three demo recipes on the three demo images.
+#
+#   demo-images/run-demo.sh [OUTPUT-FOLDER]     (default: demo-output/)
+#
+# The output folder is taken relative to the current directory and created if
+# needed; existing outputs are replaced. The images themselves are made by
+# `cargo run --release --example make_demo -- demo-images`.
+set -euo pipefail
+
+here="$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)"
+out="${1:-demo-output}"
+mkdir -p "$out"
+
+pumice() {
+    cargo run --release --quiet --manifest-path "$here/../Cargo.toml" -- "$@"
+}
+
+demo() {
+    local input="$1" recipe="$2" output="$3"
+    pumice run "$here/$input" -o "$out/$output" -r "$here/recipes/$recipe" --overwrite
+    echo "$input -> $out/$output (recipes/$recipe)"
+}
+
+demo diatom-slide.tif micrograph.toml diatom-slide-clean.tif
+demo ledger-page.png ledger.toml ledger-page-clean.png
+demo harbour-photo.jpg photo.toml harbour-web.jpg

@@ -7,6 +7,7 @@ use std::panic::{AssertUnwindSafe, catch_unwind};
 use std::str::FromStr;
 
 use image::{DynamicImage, ImageDecoder, ImageReader};
+use rayon::prelude::*;
 
 use super::format::Format;
 use super::{exif, jpeg_markers};
@@ -176,30 +177,42 @@ enum Samples<'a> {
     F32(&'a [f32]),
 }
 
-/// Splits interleaved samples into planes, mapping integer codes to `code / max`.
+/// Splits interleaved samples into planes, mapping integer codes to `code / max`
+/// (a division, so `round(value · max)` gives the code back exactly). Rows are
+/// split in parallel.
 fn planar(width: usize, height: usize, layout: Layout, samples: Samples<'_>) -> Result<Raster, Error> {
     let n = layout.channels();
-    let len = width * height;
+    let needed = width * height * n;
+    let available = match &samples {
+        Samples::U8(s) => s.len(),
+        Samples::U16(s) => s.len(),
+        Samples::F32(s) => s.len(),
+    };
+    if available < needed {
+        return Err(Error::Decode { format: "image", reason: "the decoder returned too few samples".into() });
+    }
     let planes = (0..n)
         .map(|c| {
-            let data: Vec<f32> = match &samples {
-                Samples::U8(s) => {
-                    s.iter().skip(c).step_by(n).take(len).map(|&v| f32::from(v) / 255.0).collect()
+            let mut plane = Plane::zeros(width, height)?;
+            plane.as_mut_slice().par_chunks_mut(width).enumerate().for_each(|(y, row)| {
+                let start = y * width * n + c;
+                match &samples {
+                    Samples::U8(s) => row
+                        .iter_mut()
+                        .zip(s[start..].iter().step_by(n))
+                        .for_each(|(o, &v)| *o = f32::from(v) / 255.0),
+                    Samples::U16(s) => row
+                        .iter_mut()
+                        .zip(s[start..].iter().step_by(n))
+                        .for_each(|(o, &v)| *o = f32::from(v) / 65535.0),
+                    Samples::F32(s) => {
+                        row.iter_mut().zip(s[start..].iter().step_by(n)).for_each(|(o, &v)| *o = v)
+                    }
                 }
-                Samples::U16(s) => {
-                    s.iter().skip(c).step_by(n).take(len).map(|&v| f32::from(v) / 65535.0).collect()
-                }
-                Samples::F32(s) => s.iter().skip(c).step_by(n).take(len).copied().collect(),
-            };
-            if data.len() != len {
-                return Err(Error::Decode {
-                    format: "image",
-                    reason: "the decoder returned too few samples".into(),
-                });
-            }
-            Plane::from_vec(width, height, data)
+            });
+            Ok(plane)
         })
-        .collect::<Result<Vec<_>, _>>()?;
+        .collect::<Result<Vec<_>, Error>>()?;
     Raster::new(planes, layout, Encoding::Srgb)
 }
 

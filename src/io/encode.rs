@@ -297,10 +297,11 @@ fn expand_gray(raster: &Raster) -> Result<Raster, Error> {
 }
 
 /// Interleaves all planes row by row in parallel, mapping colour samples with
-/// `colour` and alpha samples with `alpha`.
+/// `colour` and alpha samples with `alpha`. Each plane's row is converted in a
+/// tight loop first and then scattered, so the conversion vectorises.
 fn interleave<T, C, A>(raster: &Raster, colour: C, alpha: A) -> Vec<T>
 where
-    T: Copy + Default + Send,
+    T: Copy + Default + Send + Sync,
     C: Fn(f32) -> T + Sync,
     A: Fn(f32) -> T + Sync,
 {
@@ -309,58 +310,66 @@ where
     let planes = raster.planes();
     let mut out = vec![T::default(); w * raster.height() * n];
     out.par_chunks_mut(w * n).enumerate().for_each(|(y, row)| {
+        let mut converted = vec![T::default(); w];
         for (c, plane) in planes.iter().enumerate() {
-            let f: &(dyn Fn(f32) -> T + Sync) = if c < n_colour { &colour } else { &alpha };
-            for (o, &v) in row.iter_mut().skip(c).step_by(n).zip(plane.row(y)) {
-                *o = f(v);
+            if c < n_colour {
+                converted.iter_mut().zip(plane.row(y)).for_each(|(o, &v)| *o = colour(v));
+            } else {
+                converted.iter_mut().zip(plane.row(y)).for_each(|(o, &v)| *o = alpha(v));
+            }
+            if n == 1 {
+                row.copy_from_slice(&converted);
+            } else {
+                for (px, &v) in row.chunks_exact_mut(n).zip(&converted) {
+                    px[c] = v;
+                }
             }
         }
     });
     out
 }
 
-/// `round(clamp(v, 0, 1) · max)`, NaN as 0.
+/// `round(clamp(v, 0, 1) · max)` with halves rounded up, NaN as 0. The cast
+/// truncates, which is the floor for the non-negative value it sees.
 #[inline]
-fn quantise(v: f32, max: f32) -> f32 {
-    if v.is_nan() { 0.0 } else { (v.clamp(0.0, 1.0) * max + 0.5).floor() }
+fn quantise(v: f32, max: f32) -> u32 {
+    // `max(0.0)` also maps NaN to 0.
+    (v.max(0.0).min(1.0) * max + 0.5) as u32
 }
 
-/// Samples as `max`-level codes in `file` encoding.
-fn code_fn(raster: &Raster, file: Encoding, max: u32) -> impl Fn(f32) -> u32 + Sync {
-    let q = match max {
-        255 => Quantiser::u8(),
-        _ => Quantiser::u16(),
-    };
+/// Samples as `max`-level codes in `file` encoding, written by `put`.
+fn interleave_codes<T>(raster: &Raster, file: Encoding, max: u32, put: impl Fn(u32) -> T + Sync) -> Vec<T>
+where
+    T: Copy + Default + Send + Sync,
+{
     let m = max as f32;
-    let from = raster.encoding;
-    move |v| match (from, file) {
-        (Encoding::Linear, Encoding::Srgb) => q.code(v),
-        (Encoding::Srgb, Encoding::Linear) => quantise(srgb::decode(v), m) as u32,
-        _ => quantise(v, m) as u32,
+    let alpha = |a: f32| put(quantise(a, m));
+    match (raster.encoding, file) {
+        (Encoding::Linear, Encoding::Srgb) => {
+            let q = if max == 255 { Quantiser::u8() } else { Quantiser::u16() };
+            interleave(raster, |v| put(q.code(v)), alpha)
+        }
+        (Encoding::Srgb, Encoding::Linear) => {
+            interleave(raster, |v| put(quantise(srgb::decode(v), m)), alpha)
+        }
+        _ => interleave(raster, |v| put(quantise(v, m)), alpha),
     }
 }
 
 fn interleave_u8(raster: &Raster, file: Encoding) -> Vec<u8> {
-    let code = code_fn(raster, file, 255);
-    interleave(raster, |v| code(v) as u8, |a| quantise(a, 255.0) as u8)
+    interleave_codes(raster, file, 255, |c| c as u8)
 }
 
 fn interleave_u16(raster: &Raster, file: Encoding) -> Vec<u16> {
-    let code = code_fn(raster, file, 65535);
-    interleave(raster, |v| code(v) as u16, |a| quantise(a, 65535.0) as u16)
+    interleave_codes(raster, file, 65535, |c| c as u16)
 }
 
 fn interleave_f32(raster: &Raster, file: Encoding) -> Vec<f32> {
-    let from = raster.encoding;
-    interleave(
-        raster,
-        move |v| match (from, file) {
-            (Encoding::Linear, Encoding::Srgb) => srgb::encode(v),
-            (Encoding::Srgb, Encoding::Linear) => srgb::decode(v),
-            _ => v,
-        },
-        |a| a,
-    )
+    match (raster.encoding, file) {
+        (Encoding::Linear, Encoding::Srgb) => interleave(raster, srgb::encode, |a| a),
+        (Encoding::Srgb, Encoding::Linear) => interleave(raster, srgb::decode, |a| a),
+        _ => interleave(raster, |v| v, |a| a),
+    }
 }
 
 /// Writes a TIFF with Deflate compression (horizontal predictor for integers),
@@ -527,9 +536,14 @@ mod tests {
 
     #[test]
     fn quantise_rounds_half_up_and_clamps() {
-        assert_eq!(quantise(0.5 / 255.0, 255.0), 1.0);
-        assert_eq!(quantise(-3.0, 255.0), 0.0);
-        assert_eq!(quantise(7.0, 255.0), 255.0);
-        assert_eq!(quantise(f32::NAN, 65535.0), 0.0);
+        assert_eq!(quantise(0.5 / 255.0, 255.0), 1);
+        assert_eq!(quantise(0.49 / 255.0, 255.0), 0);
+        assert_eq!(quantise(-3.0, 255.0), 0);
+        assert_eq!(quantise(7.0, 255.0), 255);
+        assert_eq!(quantise(f32::NAN, 65535.0), 0);
+        assert_eq!(quantise(f32::INFINITY, 65535.0), 65535);
+        for k in 0..=255u32 {
+            assert_eq!(quantise(k as f32 / 255.0, 255.0), k);
+        }
     }
 }

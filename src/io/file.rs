@@ -79,7 +79,23 @@ pub fn write_atomic(to: &Location, bytes: &[u8], overwrite: bool) -> io::Result<
         _ => Path::new("."),
     };
     let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
-    let mut tmp = tempfile::Builder::new().prefix(&format!(".{name}.")).suffix(".tmp").tempfile_in(dir)?;
+    let prefix = format!(".{name}.");
+    let mut builder = tempfile::Builder::new();
+    builder.prefix(&prefix).suffix(".tmp");
+    // A temporary file is private by default; the output should get the
+    // permissions a newly created file gets (0666 less the umask, which
+    // open(2) applies to this mode) or, when replacing, those of the old file.
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        builder.permissions(fs::Permissions::from_mode(0o666));
+    }
+    let mut tmp = builder.tempfile_in(dir)?;
+    if overwrite {
+        if let Ok(old) = fs::metadata(path) {
+            tmp.as_file().set_permissions(old.permissions())?;
+        }
+    }
     tmp.write_all(bytes)?;
     tmp.as_file().sync_all()?;
     if overwrite {
@@ -104,6 +120,25 @@ mod tests {
         write_atomic(&target, b"three", true).unwrap();
         assert_eq!(fs::read(dir.path().join("out.png")).unwrap(), b"three");
         assert_eq!(fs::read_dir(dir.path()).unwrap().count(), 1);
+    }
+
+    #[cfg(unix)]
+    #[test]
+    fn outputs_get_ordinary_permissions() {
+        use std::os::unix::fs::PermissionsExt;
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("out.png");
+        write_atomic(&Location::Path(path.clone()), b"x", false).unwrap();
+        // Readable by others unless the umask forbids it (a umask of 077 would).
+        let mode = fs::metadata(&path).unwrap().permissions().mode() & 0o777;
+        assert_ne!(mode, 0o600, "output was left private: {mode:o}");
+        fs::set_permissions(&path, fs::Permissions::from_mode(0o640)).unwrap();
+        write_atomic(&Location::Path(path.clone()), b"y", true).unwrap();
+        assert_eq!(
+            fs::metadata(&path).unwrap().permissions().mode() & 0o777,
+            0o640,
+            "replacing keeps the old mode"
+        );
     }
 
     #[test]

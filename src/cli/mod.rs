@@ -40,7 +40,7 @@ pub struct Cli {
 #[derive(Debug, Subcommand)]
 pub enum Command {
     /// Run steps on an image and write the result
-    Run(run::RunArgs),
+    Run(Box<run::RunArgs>),
     /// List the operators, or describe one
     Ops(ops::OpsArgs),
     /// Work with recipe files
@@ -56,7 +56,7 @@ pub enum Command {
 pub fn main() -> Exit {
     let cli = Cli::parse();
     match cli.command {
-        Command::Run(args) => run::run(args),
+        Command::Run(args) => run::run(*args),
         Command::Ops(args) => ops::run(args),
         Command::Recipe(cmd) => recipe::run(cmd),
         Command::Completions(args) => completions::run(args),

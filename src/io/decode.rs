@@ -267,15 +267,15 @@ fn decode_png(bytes: &[u8], limits: &Limits) -> Result<Decoded, Error> {
     raster.metadata = Metadata {
         icc_profile: info.icc_profile.as_ref().map(|c| c.to_vec()),
         exif: info.exif_metadata.as_ref().map(|c| c.to_vec()),
-        resolution: info.pixel_dims.and_then(|d| match d.unit {
+        resolution: info.pixel_dims.map(|d| match d.unit {
             // pHYs in pixels per metre (PNG 3rd ed. §11.3.5.3); kept exact as pixels per centimetre.
-            png::Unit::Meter => Some(Resolution {
+            png::Unit::Meter => Resolution {
                 x: f64::from(d.xppu) / 100.0,
                 y: f64::from(d.yppu) / 100.0,
                 unit: ResolutionUnit::Centimetre,
-            }),
+            },
             png::Unit::Unspecified => {
-                Some(Resolution { x: f64::from(d.xppu), y: f64::from(d.yppu), unit: ResolutionUnit::None })
+                Resolution { x: f64::from(d.xppu), y: f64::from(d.yppu), unit: ResolutionUnit::None }
             }
         }),
         ..Metadata::default()

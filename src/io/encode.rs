@@ -333,8 +333,8 @@ where
 /// truncates, which is the floor for the non-negative value it sees.
 #[inline]
 fn quantise(v: f32, max: f32) -> u32 {
-    // `max(0.0)` also maps NaN to 0.
-    (v.max(0.0).min(1.0) * max + 0.5) as u32
+    // A NaN stays NaN through `clamp`, and the cast maps NaN to 0.
+    (v.clamp(0.0, 1.0) * max + 0.5) as u32
 }
 
 /// Samples as `max`-level codes in `file` encoding, written by `put`.

@@ -91,10 +91,8 @@ pub fn write_atomic(to: &Location, bytes: &[u8], overwrite: bool) -> io::Result<
         builder.permissions(fs::Permissions::from_mode(0o666));
     }
     let mut tmp = builder.tempfile_in(dir)?;
-    if overwrite {
-        if let Ok(old) = fs::metadata(path) {
-            tmp.as_file().set_permissions(old.permissions())?;
-        }
+    if overwrite && let Ok(old) = fs::metadata(path) {
+        tmp.as_file().set_permissions(old.permissions())?;
     }
     tmp.write_all(bytes)?;
     tmp.as_file().sync_all()?;

@@ -128,14 +128,14 @@ impl<'a> Job<'a> {
                 Format::WRITE_NAMES.join(", ")
             )));
         }
-        if let Some(s) = options.sample {
-            if !format.can_write(s) {
-                return Err(fail(format!(
-                    "{} cannot hold {} samples; choose another --depth or format",
-                    format.name(),
-                    s.name()
-                )));
-            }
+        if let Some(s) = options.sample
+            && !format.can_write(s)
+        {
+            return Err(fail(format!(
+                "{} cannot hold {} samples; choose another --depth or format",
+                format.name(),
+                s.name()
+            )));
         }
         if let Location::Path(out) = &output {
             let parent = match out.parent() {
@@ -145,13 +145,13 @@ impl<'a> Job<'a> {
             if !parent.is_dir() {
                 return Err(fail(format!("the output folder `{}` does not exist", parent.display())));
             }
-            if let Location::Path(inp) = &input {
-                if same_file(inp, out) {
-                    return Err(fail(format!(
-                        "the output `{}` is the input; Pumice never overwrites its input — choose another output name",
-                        out.display()
-                    )));
-                }
+            if let Location::Path(inp) = &input
+                && same_file(inp, out)
+            {
+                return Err(fail(format!(
+                    "the output `{}` is the input; Pumice never overwrites its input — choose another output name",
+                    out.display()
+                )));
             }
             if out.exists() && !overwrite {
                 return Err(fail(format!(

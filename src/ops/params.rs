@@ -316,23 +316,6 @@ pub fn parse_matrix(text: &str) -> Result<Matrix, String> {
     Ok(Matrix { rows, cols, data })
 }
 
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn matrices_parse_and_reject_ragged_rows() {
-        let m = parse_matrix("1 2 1; 2 4 2 ;1 2 1").unwrap();
-        assert_eq!((m.rows, m.cols), (3, 3));
-        assert_eq!(m.get(1, 1), 4.0);
-        assert!(parse_matrix("1 2; 3").unwrap_err().contains("row 2 has 1"));
-        assert!(parse_matrix("1 x").unwrap_err().contains("`x`"));
-        assert!(parse_matrix("1 2;;3 4").unwrap_err().contains("row 2 is empty"));
-        assert!(parse_matrix("").is_err());
-        assert!(parse_matrix("nan").is_err());
-    }
-}
-
 /// The `border` parameter shared by neighbourhood operators.
 pub const BORDER_PARAM: ParamSpec = ParamSpec {
     name: "border",
@@ -355,4 +338,21 @@ pub fn border(args: &Args) -> Result<crate::tile::Border, ParamError> {
     let fill = args.number("fill")? as f32;
     crate::tile::Border::from_name(name, fill)
         .ok_or_else(|| ParamError::new(format!("internal: unknown border `{name}`")))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn matrices_parse_and_reject_ragged_rows() {
+        let m = parse_matrix("1 2 1; 2 4 2 ;1 2 1").unwrap();
+        assert_eq!((m.rows, m.cols), (3, 3));
+        assert_eq!(m.get(1, 1), 4.0);
+        assert!(parse_matrix("1 2; 3").unwrap_err().contains("row 2 has 1"));
+        assert!(parse_matrix("1 x").unwrap_err().contains("`x`"));
+        assert!(parse_matrix("1 2;;3 4").unwrap_err().contains("row 2 is empty"));
+        assert!(parse_matrix("").is_err());
+        assert!(parse_matrix("nan").is_err());
+    }
 }

@@ -81,15 +81,15 @@ impl Pipeline {
         // Point functions waiting to run, in order; the conversions are owned here.
         let mut pending: Vec<Pending<'_>> = Vec::new();
         for (index, step) in self.steps.iter().enumerate() {
-            if let Some(target) = policy.encoding_for(step.op.domain()) {
-                if target != raster.encoding {
-                    pending.push(match target {
-                        Encoding::Linear => Pending::ToLinear(ToLinear { levels: raster.levels }),
-                        Encoding::Srgb => Pending::ToSrgb(ToSrgb),
-                    });
-                    raster.encoding = target;
-                    raster.levels = None;
-                }
+            if let Some(target) = policy.encoding_for(step.op.domain())
+                && target != raster.encoding
+            {
+                pending.push(match target {
+                    Encoding::Linear => Pending::ToLinear(ToLinear { levels: raster.levels }),
+                    Encoding::Srgb => Pending::ToSrgb(ToSrgb),
+                });
+                raster.encoding = target;
+                raster.levels = None;
             }
             if let Some(map) = step.op.sample_map() {
                 pending.push(Pending::Step(map));

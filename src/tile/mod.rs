@@ -6,21 +6,36 @@ pub mod border;
 
 pub use border::Border;
 
+use std::sync::OnceLock;
+
 use rayon::prelude::*;
 
 use crate::raster::Plane;
 
-/// Bytes of working set a band aims at: its output rows plus the halo rows it
-/// reads. About half of the 2 MiB per-core L2 of the machines this was measured
-/// on; see DEVELOPERS.md ("Band height") for the measurement.
+/// Bytes of working set a band aims at by default: its output rows plus the
+/// halo rows it reads. About half of the 2 MiB per-core L2 of the machines this
+/// was measured on; see DEVELOPERS.md ("Band height") for the measurement.
 pub const BAND_BYTES: usize = 1 << 20;
+
+/// The band budget in force: [`BAND_BYTES`], or `PUMICE_BAND_BYTES` from the
+/// environment (read once; for tuning on other machines).
+pub fn band_bytes() -> usize {
+    static BYTES: OnceLock<usize> = OnceLock::new();
+    *BYTES.get_or_init(|| {
+        std::env::var("PUMICE_BAND_BYTES")
+            .ok()
+            .and_then(|v| v.parse().ok())
+            .filter(|&b| b > 0)
+            .unwrap_or(BAND_BYTES)
+    })
+}
 
 /// Rows per band for a plane `width` samples wide whose kernel reads `halo`
 /// rows above and below: enough rows that the halo is a small overhead, few
-/// enough that band and halo stay within [`BAND_BYTES`], and at least one.
+/// enough that band and halo stay within [`band_bytes`], and at least one.
 pub fn band_rows(width: usize, halo: usize) -> usize {
     let row_bytes = width.max(1) * std::mem::size_of::<f32>();
-    let rows_in_budget = (BAND_BYTES / row_bytes).max(1);
+    let rows_in_budget = (band_bytes() / row_bytes).max(1);
     rows_in_budget.saturating_sub(2 * halo).max(8.min(rows_in_budget)).max(1)
 }
 
@@ -90,7 +105,7 @@ mod tests {
 
     #[test]
     fn band_height_stays_in_budget_and_positive() {
-        assert!(band_rows(4000, 8) * 4000 * 4 <= BAND_BYTES);
+        assert!(band_rows(4000, 8) * 4000 * 4 <= band_bytes());
         assert!(band_rows(4000, 8) >= 8);
         assert_eq!(band_rows(1 << 20, 3), 1);
         assert!(band_rows(1, 0) > 0);

@@ -134,7 +134,11 @@ enum KernelShape {
 
 impl Convolve {
     pub fn new(m: &params::Matrix, normalize: bool, border: Border) -> Result<Convolve, ParamError> {
-        if m.rows % 2 == 0 || m.cols % 2 == 0 || m.rows > MAX_KERNEL_SIDE || m.cols > MAX_KERNEL_SIDE {
+        if m.rows.is_multiple_of(2)
+            || m.cols.is_multiple_of(2)
+            || m.rows > MAX_KERNEL_SIDE
+            || m.cols > MAX_KERNEL_SIDE
+        {
             return Err(ParamError::new(format!(
                 "the kernel must have an odd number of rows and columns, at most {MAX_KERNEL_SIDE}; got {}×{}",
                 m.rows, m.cols

@@ -115,6 +115,7 @@ pub fn decode(bytes: &[u8], opts: &DecodeOptions) -> Result<Raster, Error> {
     let decoded = catch_unwind(AssertUnwindSafe(|| match format {
         Format::Png => decode_png(bytes, &opts.limits),
         Format::Tiff => decode_tiff(bytes, &opts.limits),
+        Format::Jpeg => decode_jpeg(bytes, &opts.limits),
         _ => decode_generic(bytes, format, &opts.limits),
     }))
     .map_err(|_| Error::Decode {
@@ -433,6 +434,167 @@ fn decode_generic(bytes: &[u8], format: Format, limits: &Limits) -> Result<Decod
     Ok(Decoded { raster, sample, orientation: None })
 }
 
+/// JPEG: four-component (CMYK, YCCK) files take their own path; the rest go
+/// through the `image` crate.
+fn decode_jpeg(bytes: &[u8], limits: &Limits) -> Result<Decoded, Error> {
+    let headers = jpeg_markers::read(bytes);
+    if headers.components == Some(4) {
+        decode_cmyk_jpeg(bytes, &headers, limits)
+    } else {
+        decode_generic(bytes, Format::Jpeg, limits)
+    }
+}
+
+/// How a four-component JPEG stores its samples, from its Adobe APP14 marker
+/// (Adobe Technical Note #5116, §18).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+enum CmykStorage {
+    /// No Adobe marker: plain CMYK, stored 255 = full ink.
+    Plain,
+    /// Adobe marker, transform 0: CMYK stored inverted, 255 = no ink.
+    Inverted,
+    /// Adobe marker, transform 2: YCCK. The first three components are YCbCr of
+    /// R = 255 − C, G = 255 − M, B = 255 − Y on the inverted stored values (the
+    /// complement zune-jpeg's own YCCK → RGB conversion undoes too); K is stored
+    /// inverted as it is.
+    Ycck,
+}
+
+impl CmykStorage {
+    fn from_headers(h: &jpeg_markers::JpegHeaders) -> Result<CmykStorage, Error> {
+        match h.adobe_transform {
+            None => Ok(CmykStorage::Plain),
+            Some(0) => Ok(CmykStorage::Inverted),
+            Some(2) => Ok(CmykStorage::Ycck),
+            Some(t) => Err(Error::Unsupported(format!(
+                "JPEG with four components whose Adobe marker gives colour transform {t}; \
+                 Pumice reads transform 0 (CMYK) and 2 (YCCK)"
+            ))),
+        }
+    }
+
+    /// The decoder's name for the stored colour model.
+    fn zune(self) -> zune_core::colorspace::ColorSpace {
+        use zune_core::colorspace::ColorSpace;
+        match self {
+            CmykStorage::Plain | CmykStorage::Inverted => ColorSpace::CMYK,
+            CmykStorage::Ycck => ColorSpace::YCCK,
+        }
+    }
+
+    /// Ink amounts in `[0, 1]` (0 = none, 1 = full) from four decoded samples.
+    fn inks(self, s: [u8; 4]) -> [f32; 4] {
+        let v = s.map(|x| f32::from(x) / 255.0);
+        match self {
+            CmykStorage::Plain => v,
+            CmykStorage::Inverted => v.map(|x| 1.0 - x),
+            CmykStorage::Ycck => {
+                // ITU-T T.871 §7, YCbCr → RGB (8-bit, chroma offset 128).
+                let (y, cb, cr) = (f32::from(s[0]), f32::from(s[1]) - 128.0, f32::from(s[2]) - 128.0);
+                let r = y + 1.402 * cr;
+                let g = y - 0.344136 * cb - 0.714136 * cr;
+                let b = y + 1.772 * cb;
+                // Stored (inverted) C = 255 − R, so the ink is 1 − (255 − R)/255 = R/255.
+                let ink = |x: f32| (x / 255.0).clamp(0.0, 1.0);
+                [ink(r), ink(g), ink(b), 1.0 - v[3]]
+            }
+        }
+    }
+}
+
+fn zune_error(e: zune_jpeg::errors::DecodeErrors) -> Error {
+    match e {
+        zune_jpeg::errors::DecodeErrors::Unsupported(u) => Error::Unsupported(format!("JPEG: {u:?}")),
+        other => Error::Decode { format: "JPEG", reason: other.to_string() },
+    }
+}
+
+/// Decodes a four-component JPEG: zune-jpeg gives the stored samples untouched
+/// (output colour space CMYK, or YCCK for YCCK files), the Adobe APP14 marker
+/// says how they are stored ([`CmykStorage`]), and the inks `C, M, Y, K` in
+/// `[0, 1]` become RGB with
+///
+/// ```text
+/// R = (1 − C)(1 − K),   G = (1 − M)(1 − K),   B = (1 − Y)(1 − K)
+/// ```
+///
+/// rounded to the nearest 8-bit code (the source is 8-bit, so the raster keeps
+/// exact `code / 255` samples). This is the common uncalibrated conversion: it
+/// models no press, paper or dot gain. A CMYK ICC profile in the file is kept in
+/// the metadata but not applied — a known limitation; colours from such files
+/// are only approximate.
+fn decode_cmyk_jpeg(
+    bytes: &[u8],
+    headers: &jpeg_markers::JpegHeaders,
+    limits: &Limits,
+) -> Result<Decoded, Error> {
+    use zune_core::bytestream::ZCursor;
+    use zune_core::options::DecoderOptions as ZuneOptions;
+
+    let storage = CmykStorage::from_headers(headers)?;
+    // Lenient, as the image crate sets zune-jpeg up for the other JPEGs. JPEG frame sizes are 16-bit (ITU-T T.81 §B.2.2), so no frame is refused for its size here;
+    // `Limits` decides.
+    let options = ZuneOptions::default()
+        .set_strict_mode(false)
+        .set_max_width(usize::from(u16::MAX))
+        .set_max_height(usize::from(u16::MAX));
+    let mut d = zune_jpeg::JpegDecoder::new_with_options(ZCursor::new(bytes), options);
+    d.decode_headers().map_err(zune_error)?;
+    let (width, height) =
+        d.dimensions().ok_or_else(|| Error::Decode { format: "JPEG", reason: "no frame header".into() })?;
+    let (w, h) = (width as u64, height as u64);
+    limits.check(Format::Jpeg, w, h, w.saturating_mul(h).saturating_mul(4))?;
+    let components = d.info().map(|i| i.components);
+    let found = d.input_colorspace();
+    if components != Some(4) || found != Some(storage.zune()) {
+        return Err(Error::Decode {
+            format: "JPEG",
+            reason: format!(
+                "the headers disagree: the frame walk found 4 components and {}, the decoder read \
+                 {components:?} components as {found:?}",
+                match headers.adobe_transform {
+                    None => "no Adobe marker".to_string(),
+                    Some(t) => format!("Adobe transform {t}"),
+                }
+            ),
+        });
+    }
+    d.set_options(d.options().jpeg_set_out_colorspace(storage.zune()));
+    let icc_profile = d.icc_profile();
+    let exif = d.exif().cloned();
+    let raw = d.decode().map_err(zune_error)?;
+    if d.output_colorspace() != Some(storage.zune()) || raw.len() < width * height * 4 {
+        return Err(Error::Decode {
+            format: "JPEG",
+            reason: "the decoder did not return the stored four-component samples".into(),
+        });
+    }
+    let mut r = Plane::zeros(width, height)?;
+    let mut g = Plane::zeros(width, height)?;
+    let mut b = Plane::zeros(width, height)?;
+    cmyk_rows(&raw, width, storage, [r.as_mut_slice(), g.as_mut_slice(), b.as_mut_slice()]);
+    let mut raster = Raster::new(vec![r, g, b], Layout::Rgb, Encoding::Srgb)?;
+    raster.metadata = Metadata { icc_profile, exif, resolution: headers.resolution, ..Metadata::default() };
+    Ok(Decoded { raster, sample: SampleType::U8, orientation: None })
+}
+
+/// Fills the R, G, B planes from interleaved four-component samples, rows in parallel.
+fn cmyk_rows(raw: &[u8], width: usize, storage: CmykStorage, [r, g, b]: [&mut [f32]; 3]) {
+    let code = |x: f32| (x * 255.0).round() / 255.0;
+    r.par_chunks_mut(width)
+        .zip(g.par_chunks_mut(width))
+        .zip(b.par_chunks_mut(width))
+        .zip(raw.par_chunks(width * 4))
+        .for_each(|(((r, g), b), src)| {
+            for (x, px) in src.chunks_exact(4).enumerate() {
+                let [c, m, y, k] = storage.inks([px[0], px[1], px[2], px[3]]);
+                r[x] = code((1.0 - c) * (1.0 - k));
+                g[x] = code((1.0 - m) * (1.0 - k));
+                b[x] = code((1.0 - y) * (1.0 - k));
+            }
+        });
+}
+
 #[cfg(test)]
 mod tests {
     //! Edge cases: empty input, unknown signature, headers over the pixel limit.
@@ -444,6 +606,43 @@ mod tests {
         assert!(e.contains("empty"), "{e}");
         let e = decode(b"hello world", &DecodeOptions::default()).unwrap_err().to_string();
         assert!(e.contains("68 65 6c"), "{e}");
+    }
+
+    #[test]
+    fn cmyk_storage_follows_the_adobe_marker() {
+        let h = |t| jpeg_markers::JpegHeaders { adobe_transform: t, ..Default::default() };
+        assert_eq!(CmykStorage::from_headers(&h(None)).unwrap(), CmykStorage::Plain);
+        assert_eq!(CmykStorage::from_headers(&h(Some(0))).unwrap(), CmykStorage::Inverted);
+        assert_eq!(CmykStorage::from_headers(&h(Some(2))).unwrap(), CmykStorage::Ycck);
+        for t in [1, 3, 255] {
+            let e = CmykStorage::from_headers(&h(Some(t))).unwrap_err().to_string();
+            assert!(e.contains(&format!("colour transform {t}")), "{e}");
+        }
+    }
+
+    #[test]
+    fn inks_by_storage() {
+        assert_eq!(CmykStorage::Plain.inks([255, 0, 51, 255]), [1.0, 0.0, 0.2, 1.0]);
+        assert_eq!(CmykStorage::Inverted.inks([255, 0, 51, 255]), [0.0, 1.0, 0.8, 0.0]);
+        // YCCK with no chroma (Cb = Cr = 128): R = G = B = Y (T.871 §7), so each ink is Y/255.
+        let [c, m, y, k] = CmykStorage::Ycck.inks([51, 128, 128, 255]);
+        assert!([c, m, y].iter().all(|&v| (v - 0.2).abs() < 1e-6), "{c} {m} {y}");
+        assert_eq!(k, 0.0);
+        // Full-scale chroma pushes R past 255; the ink is clamped to [0, 1].
+        let [c, _, _, _] = CmykStorage::Ycck.inks([255, 128, 255, 0]);
+        assert_eq!(c, 1.0);
+    }
+
+    #[test]
+    fn cmyk_rows_apply_the_naive_formula_and_round_to_codes() {
+        // Plain storage: white, full K, 50 % cyan on 20 % K.
+        let raw = [0, 0, 0, 0, 0, 0, 0, 255, 128, 0, 0, 51];
+        let (mut r, mut g, mut b) = (vec![0.0; 3], vec![0.0; 3], vec![0.0; 3]);
+        cmyk_rows(&raw, 3, CmykStorage::Plain, [&mut r, &mut g, &mut b]);
+        assert_eq!(r[..2], [1.0, 0.0]);
+        assert_eq!((g[0], b[0], g[1], b[1]), (1.0, 1.0, 0.0, 0.0));
+        // R = (1 − 128/255)(1 − 0.2) = 0.39843… → code 102 (round(101.6)); G = B = 0.8 → 204.
+        assert_eq!((r[2] * 255.0, g[2] * 255.0, b[2] * 255.0), (102.0, 204.0, 204.0));
     }
 
     #[test]

@@ -4,6 +4,7 @@
 mod harness;
 
 mod cli;
+mod cmyk;
 mod codecs;
 mod orientation;
 mod reference;

@@ -12,6 +12,17 @@ Workloads (4000x3000 RGB):
                      Pillow Image.open().load() / Image.save(quality=90).
   png-decode, png-encode     the same for PNG at a fast deflate level
                      (cv2.IMWRITE_PNG_COMPRESSION=1, Pillow compress_level=1).
+  convolve-3x3       cv2.filter2D (float32, BORDER_REFLECT; the kernel is
+                     symmetric, so correlation = convolution) and
+                     scipy.ndimage.convolve (mode='reflect'), kernel 0 -1 0;-1 5 -1;0 -1 0.
+  convolve-5x5-separable  cv2.sepFilter2D and scipy.ndimage.convolve with the
+                     binomial 1 4 6 4 1 outer product / 256.
+  gray               cv2.cvtColor(COLOR_RGB2GRAY) on float32, numpy weighted sum
+                     with the BT.709 weights.
+  invert, gamma      numpy 1 - x and np.power(x, 1/2.2) on float32 planes;
+                     cv2.subtract(1, x) and cv2.pow(x, 1/2.2).
+  flip, rotate-90, crop   cv2.flip / cv2.rotate and numpy (fliplr, rot90,
+                     slicing), each materialised as a contiguous copy.
 """
 import argparse
 import io
@@ -62,6 +73,18 @@ def main():
             out[f"cv2.gauss-{sigma}"] = median_time(
                 lambda: cv2.GaussianBlur(f32, (2 * r + 1, 2 * r + 1), sigma, borderType=cv2.BORDER_REFLECT),
                 args.repeats)
+        sharpen = np.array([[0, -1, 0], [-1, 5, -1], [0, -1, 0]], np.float32)
+        binomial = np.array([1, 4, 6, 4, 1], np.float32) / 16.0
+        out["cv2.convolve-3x3"] = median_time(
+            lambda: cv2.filter2D(f32, -1, sharpen, borderType=cv2.BORDER_REFLECT), args.repeats)
+        out["cv2.convolve-5x5-separable"] = median_time(
+            lambda: cv2.sepFilter2D(f32, -1, binomial, binomial, borderType=cv2.BORDER_REFLECT), args.repeats)
+        rgb32 = cv2.cvtColor(f32, cv2.COLOR_BGR2RGB)
+        out["cv2.gray"] = median_time(lambda: cv2.cvtColor(rgb32, cv2.COLOR_RGB2GRAY), args.repeats)
+        out["cv2.invert"] = median_time(lambda: cv2.subtract(1.0, f32), args.repeats)
+        out["cv2.gamma"] = median_time(lambda: cv2.pow(f32, 1 / 2.2), args.repeats)
+        out["cv2.flip"] = median_time(lambda: cv2.flip(f32, 1), args.repeats)
+        out["cv2.rotate-90"] = median_time(lambda: cv2.rotate(f32, cv2.ROTATE_90_CLOCKWISE), args.repeats)
     except ImportError as e:
         print(f"reference: OpenCV unavailable ({e})", file=sys.stderr)
 
@@ -75,6 +98,21 @@ def main():
             out[f"scipy.gauss-{sigma}"] = median_time(
                 lambda: [ndimage.gaussian_filter(p, sigma, truncate=4.0, mode="reflect") for p in planes],
                 max(1, args.repeats // 2))
+        sharpen = np.array([[0, -1, 0], [-1, 5, -1], [0, -1, 0]], np.float32)
+        b = np.array([1, 4, 6, 4, 1], np.float32)
+        binomial = np.outer(b, b) / 256.0
+        out["scipy.convolve-3x3"] = median_time(
+            lambda: [ndimage.convolve(p, sharpen, mode="reflect") for p in planes], max(1, args.repeats // 2))
+        out["scipy.convolve-5x5-separable"] = median_time(
+            lambda: [ndimage.convolve(p, binomial, mode="reflect") for p in planes], max(1, args.repeats // 2))
+        w = (0.2126, 0.7152, 0.0722)
+        out["numpy.gray"] = median_time(lambda: w[0] * planes[0] + w[1] * planes[1] + w[2] * planes[2], args.repeats)
+        out["numpy.invert"] = median_time(lambda: [1.0 - p for p in planes], args.repeats)
+        out["numpy.gamma"] = median_time(lambda: [np.power(p, np.float32(1 / 2.2)) for p in planes], args.repeats)
+        out["numpy.flip"] = median_time(lambda: [np.ascontiguousarray(np.fliplr(p)) for p in planes], args.repeats)
+        out["numpy.rotate-90"] = median_time(
+            lambda: [np.ascontiguousarray(np.rot90(p, -1)) for p in planes], args.repeats)
+        out["numpy.crop"] = median_time(lambda: [p[1000:2000, 1500:2500].copy() for p in planes], args.repeats)
     except ImportError as e:
         print(f"reference: scipy unavailable ({e})", file=sys.stderr)
 

@@ -155,12 +155,29 @@ fn main() {
     };
     let srgb_to_linear = median(|| drop(to_linear(&image)));
     let linear = to_linear(&image);
-    for (name, step) in [("gauss-2", "gauss:2"), ("gauss-8", "gauss:8")] {
+    let encoded = image.clone();
+    let workloads = [
+        ("gauss-2", "gauss:2", &linear),
+        ("gauss-8", "gauss:8", &linear),
+        ("convolve-3x3", "convolve:kernel=0 -1 0;-1 5 -1;0 -1 0", &linear),
+        (
+            "convolve-5x5-separable",
+            "convolve:kernel=1 4 6 4 1;4 16 24 16 4;6 24 36 24 6;4 16 24 16 4;1 4 6 4 1,normalize=true",
+            &linear,
+        ),
+        ("gray", "gray", &linear),
+        ("invert", "invert", &encoded),
+        ("gamma", "gamma:2.2", &encoded),
+        ("flip", "flip", &linear),
+        ("rotate-90", "rotate:90", &linear),
+        ("crop", "crop:x=1500,y=1000,width=1000,height=1000", &linear),
+    ];
+    for (name, step, input) in workloads {
         let p = Pipeline::parse(&[step]).unwrap();
         if wanted(name) {
             ours.push((
                 name,
-                median_with(|| linear.clone(), |r| drop(p.run(r, DomainPolicy::Auto).unwrap())),
+                median_with(|| input.clone(), |r| drop(p.run(r, DomainPolicy::Auto).unwrap())),
             ));
         }
     }
@@ -178,7 +195,7 @@ fn main() {
     println!("{:<18} {:>12} {:>26} {:>8}", "workload", "Pumice Mpx/s", "reference Mpx/s", "ratio");
     for (name, secs) in &ours {
         let key = name.trim_end_matches("-444");
-        let mut refs: Vec<(&str, f64)> = ["cv2", "scipy", "pillow"]
+        let mut refs: Vec<(&str, f64)> = ["cv2", "scipy", "numpy", "pillow"]
             .iter()
             .filter_map(|lib| reference.get(&format!("{lib}.{key}")).map(|t| (*lib, *t)))
             .collect();

@@ -520,9 +520,10 @@ fn zune_error(e: zune_jpeg::errors::DecodeErrors) -> Error {
 ///
 /// rounded to the nearest 8-bit code (the source is 8-bit, so the raster keeps
 /// exact `code / 255` samples). This is the common uncalibrated conversion: it
-/// models no press, paper or dot gain. A CMYK ICC profile in the file is kept in
-/// the metadata but not applied — a known limitation; colours from such files
-/// are only approximate.
+/// models no press, paper or dot gain, and a CMYK ICC profile in the file is not
+/// applied — a known limitation; colours from such files are only approximate.
+/// The profile is not carried either: it describes CMYK, and would mislabel the
+/// RGB result in any output.
 fn decode_cmyk_jpeg(
     bytes: &[u8],
     headers: &jpeg_markers::JpegHeaders,
@@ -560,7 +561,6 @@ fn decode_cmyk_jpeg(
         });
     }
     d.set_options(d.options().jpeg_set_out_colorspace(storage.zune()));
-    let icc_profile = d.icc_profile();
     let exif = d.exif().cloned();
     let raw = d.decode().map_err(zune_error)?;
     if d.output_colorspace() != Some(storage.zune()) || raw.len() < width * height * 4 {
@@ -574,7 +574,7 @@ fn decode_cmyk_jpeg(
     let mut b = Plane::zeros(width, height)?;
     cmyk_rows(&raw, width, storage, [r.as_mut_slice(), g.as_mut_slice(), b.as_mut_slice()]);
     let mut raster = Raster::new(vec![r, g, b], Layout::Rgb, Encoding::Srgb)?;
-    raster.metadata = Metadata { icc_profile, exif, resolution: headers.resolution, ..Metadata::default() };
+    raster.metadata = Metadata { exif, resolution: headers.resolution, ..Metadata::default() };
     Ok(Decoded { raster, sample: SampleType::U8, orientation: None })
 }
 

@@ -6,5 +6,6 @@ mod harness;
 mod cli;
 mod cmyk;
 mod codecs;
+mod colour;
 mod orientation;
 mod reference;

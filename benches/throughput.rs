@@ -175,10 +175,7 @@ fn main() {
     for (name, step, input) in workloads {
         let p = Pipeline::parse(&[step]).unwrap();
         if wanted(name) {
-            ours.push((
-                name,
-                median_with(|| input.clone(), |r| drop(p.run(r, DomainPolicy::Auto).unwrap())),
-            ));
+            ours.push((name, median_with(|| input.clone(), |r| drop(p.run(r, DomainPolicy::Auto).unwrap()))));
         }
     }
     if !only.is_empty() {

@@ -57,7 +57,13 @@ impl Operator for Crop {
         let planes = raster
             .planes()
             .iter()
-            .map(|p| Plane::from_fn(self.width, self.height, |i, j| p.get(self.x + i, self.y + j)))
+            .map(|p| {
+                let mut data = Vec::with_capacity(self.width * self.height);
+                for y in self.y..self.y + self.height {
+                    data.extend_from_slice(&p.row(y)[self.x..self.x + self.width]);
+                }
+                Plane::from_vec(self.width, self.height, data)
+            })
             .collect::<Result<Vec<_>, _>>()?;
         let layout = raster.layout();
         raster.with_planes(planes, layout)

@@ -43,8 +43,8 @@ def median_time(fn, repeats):
 
 def main():
     ap = argparse.ArgumentParser()
-    ap.add_argument("--png", required=True)
-    ap.add_argument("--jpeg", required=True)
+    ap.add_argument("png")
+    ap.add_argument("jpeg")
     ap.add_argument("--repeats", type=int, default=5)
     args = ap.parse_args()
 

@@ -7,117 +7,19 @@
 //! to its interpreter (default: `.venv/bin/python` if present, else `python3`).
 //! Without them only Pumice's figures are printed. Nothing here asserts a time.
 
-use std::collections::BTreeMap;
-use std::path::PathBuf;
-use std::process::Command;
-use std::time::Instant;
+#[path = "common.rs"]
+mod common;
 
+use common::{H, REPEATS, W, median, median_with, print_table};
 use pumice::io::{self, Chroma, DecodeOptions, EncodeOptions, Format};
 use pumice::pipeline::{DomainPolicy, Pipeline};
-use pumice::raster::{Encoding, Layout, Plane, Raster, SampleType};
-
-const W: usize = 4000;
-const H: usize = 3000;
-const REPEATS: usize = 5;
-
-/// A photo-like 8-bit RGB test image: smooth gradients, fine texture and noise
-/// from a fixed seed, so codecs and filters do representative work.
-fn test_image() -> Raster {
-    let mut state = 0x9E37_79B9_7F4A_7C15u64;
-    let mut noise = move || {
-        state ^= state << 13;
-        state ^= state >> 7;
-        state ^= state << 17;
-        (state >> 40) as f32 / (1u64 << 24) as f32 - 0.5
-    };
-    let planes = (0..3)
-        .map(|c| {
-            Plane::from_fn(W, H, |x, y| {
-                let (u, v) = (x as f32 / W as f32, y as f32 / H as f32);
-                let base = 0.5 + 0.3 * ((u * 6.0 + c as f32).sin() * (v * 4.0).cos());
-                let texture = 0.08 * ((x as f32 * 0.21).sin() * (y as f32 * 0.17).cos());
-                let code = ((base + texture + 0.04 * noise()).clamp(0.0, 1.0) * 255.0).round();
-                code / 255.0
-            })
-            .unwrap()
-        })
-        .collect();
-    let mut r = Raster::new(planes, Layout::Rgb, Encoding::Srgb).unwrap();
-    r.levels = Some(255);
-    r.metadata.source_sample = Some(SampleType::U8);
-    r
-}
-
-/// The median of `REPEATS` timings of `f`, in seconds.
-fn median(mut f: impl FnMut()) -> f64 {
-    median_with(|| (), |()| f())
-}
-
-/// The median of `REPEATS` timings of `f(setup())`, timing `f` only.
-fn median_with<T>(mut setup: impl FnMut() -> T, mut f: impl FnMut(T)) -> f64 {
-    let mut t: Vec<f64> = (0..REPEATS)
-        .map(|_| {
-            let input = setup();
-            let start = Instant::now();
-            f(input);
-            start.elapsed().as_secs_f64()
-        })
-        .collect();
-    t.sort_by(f64::total_cmp);
-    t[REPEATS / 2]
-}
-
-fn reference_times(png: &PathBuf, jpeg: &PathBuf) -> BTreeMap<String, f64> {
-    let root = PathBuf::from(env!("CARGO_MANIFEST_DIR"));
-    let python = std::env::var("PUMICE_BENCH_PYTHON").unwrap_or_else(|_| {
-        let venv = root.join(".venv/bin/python");
-        if venv.exists() { venv.display().to_string() } else { "python3".into() }
-    });
-    let out = Command::new(&python)
-        .arg(root.join("benches/reference.py"))
-        .arg("--png")
-        .arg(png)
-        .arg("--jpeg")
-        .arg(jpeg)
-        .output();
-    match out {
-        Ok(o) if o.status.success() => {
-            eprint!("{}", String::from_utf8_lossy(&o.stderr));
-            parse_flat_json(&String::from_utf8_lossy(&o.stdout))
-        }
-        Ok(o) => {
-            eprintln!("reference script failed: {}", String::from_utf8_lossy(&o.stderr));
-            BTreeMap::new()
-        }
-        Err(e) => {
-            eprintln!("reference script not run ({python}: {e})");
-            BTreeMap::new()
-        }
-    }
-}
-
-/// Parses `{"name": seconds, …}` as the reference script prints it.
-fn parse_flat_json(text: &str) -> BTreeMap<String, f64> {
-    text.trim()
-        .trim_start_matches('{')
-        .trim_end_matches('}')
-        .split(',')
-        .filter_map(|item| {
-            let (k, v) = item.split_once(':')?;
-            Some((k.trim().trim_matches('"').to_string(), v.trim().parse().ok()?))
-        })
-        .collect()
-}
 
 fn main() {
-    // `cargo bench --bench throughput -- gauss` runs only workloads whose name contains `gauss`.
-    let only: Vec<String> = std::env::args().skip(1).filter(|a| !a.starts_with("--")).collect();
-    let wanted = |name: &str| only.is_empty() || only.iter().any(|o| name.contains(o.as_str()));
+    let only = common::Only::from_args();
     let mpix = (W * H) as f64 / 1e6;
     println!("Pumice throughput, {W}×{H} RGB, {} threads, median of {REPEATS}", rayon::current_num_threads());
-    let image = test_image();
-    let data_dir = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("target/bench-data");
-    std::fs::create_dir_all(&data_dir).unwrap();
+    let image = common::test_image();
+    let data_dir = common::data_dir();
     let jpeg_opts = EncodeOptions { quality: 90, ..EncodeOptions::new(Format::Jpeg) };
     let png_bytes = io::encode(&image, &EncodeOptions::new(Format::Png)).unwrap();
     let jpeg_bytes = io::encode(&image, &jpeg_opts).unwrap();
@@ -144,17 +46,8 @@ fn main() {
             .unwrap();
     });
 
-    let to_linear = |r: &Raster| {
-        let mut r = r.clone();
-        for p in r.planes_mut() {
-            pumice::color::srgb::decode_in_place(p.as_mut_slice(), Some(255));
-        }
-        r.encoding = Encoding::Linear;
-        r.levels = None;
-        r
-    };
-    let srgb_to_linear = median(|| drop(to_linear(&image)));
-    let linear = to_linear(&image);
+    let srgb_to_linear = median(|| drop(common::to_linear(&image)));
+    let linear = common::to_linear(&image);
     let encoded = image.clone();
     let workloads = [
         ("gauss-2", "gauss:2", &linear),
@@ -174,41 +67,21 @@ fn main() {
     ];
     for (name, step, input) in workloads {
         let p = Pipeline::parse(&[step]).unwrap();
-        if wanted(name) {
+        if only.wants(name) {
             ours.push((name, median_with(|| input.clone(), |r| drop(p.run(r, DomainPolicy::Auto).unwrap()))));
         }
     }
-    if !only.is_empty() {
+    if only.is_filtered() {
         for (name, secs) in &ours {
-            if wanted(name) {
+            if only.wants(name) {
                 println!("{name}: {:.1} Mpx/s ({:.1} ms)", mpix / secs, secs * 1000.0);
             }
         }
         return;
     }
 
-    let reference = reference_times(&png_path, &jpeg_path);
-    println!();
-    println!("{:<18} {:>12} {:>26} {:>8}", "workload", "Pumice Mpx/s", "reference Mpx/s", "ratio");
-    for (name, secs) in &ours {
-        let key = name.trim_end_matches("-444");
-        let mut refs: Vec<(&str, f64)> = ["cv2", "scipy", "numpy", "pillow"]
-            .iter()
-            .filter_map(|lib| reference.get(&format!("{lib}.{key}")).map(|t| (*lib, *t)))
-            .collect();
-        if refs.is_empty() {
-            refs.push(("-", f64::NAN));
-        }
-        for (i, (lib, t)) in refs.iter().enumerate() {
-            let label = if i == 0 { *name } else { "" };
-            let ours_cell = if i == 0 { format!("{:.1}", mpix / secs) } else { String::new() };
-            println!(
-                "{label:<18} {ours_cell:>12} {:>26} {:>8}",
-                format!("{lib} {:.1}", mpix / t),
-                if t.is_nan() { "-".into() } else { format!("{:.2}×", t / secs) }
-            );
-        }
-    }
+    let reference = common::reference_times("reference.py", &[&png_path, &jpeg_path]);
+    print_table(mpix, &ours, &reference, &["cv2", "scipy", "numpy", "pillow"]);
     let decode_encode = ours[0].1 + ours[1].1;
     println!();
     println!("JPEG decode → encode (q90, 4:2:0): {:.1} Mpx/s", mpix / decode_encode);

@@ -3,6 +3,7 @@
 //! transform rasters; they do not read files, print or know about the command line.
 
 pub mod colour;
+pub mod edge;
 pub mod filter;
 pub mod geometry;
 pub mod params;

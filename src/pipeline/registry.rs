@@ -3,12 +3,17 @@
 
 use crate::error::Error;
 use crate::ops::params::OpSpec;
-use crate::ops::{colour, filter, geometry, tone};
+use crate::ops::{colour, edge, filter, geometry, tone};
 
 /// Every operator, in the order `pumice ops` lists them (by family).
 pub static OPERATORS: &[&OpSpec] = &[
     &filter::GAUSS,
     &filter::CONVOLVE,
+    &filter::BOX,
+    &filter::SHARPEN,
+    &edge::SOBEL,
+    &edge::SCHARR,
+    &edge::LAPLACE,
     &geometry::CROP,
     &geometry::FLIP,
     &geometry::ROTATE,

@@ -1,10 +1,15 @@
-//! Linear neighbourhood filters: `gauss` and `convolve`. They mix light, so they
-//! run in linear light, with alpha premultiplied while they work.
+//! Neighbourhood filters: `gauss`, `convolve`, `box` and `sharpen`. They
+//! mix light, so they run in linear light, with alpha premultiplied while they
+//! work.
 
+mod boxmean;
 mod engine;
 mod rows;
+mod sharpen;
 
+pub use boxmean::{BOX, BoxMean, MAX_BOX_RADIUS, box_mean};
 pub use engine::{correlate_2d, correlate_separable};
+pub use sharpen::{SHARPEN, Sharpen};
 
 use crate::error::{Error, ParamError};
 use crate::ops::params::{self, Kind, OpSpec, ParamSpec};

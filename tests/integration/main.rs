@@ -7,5 +7,6 @@ mod cli;
 mod cmyk;
 mod codecs;
 mod colour;
+mod filters;
 mod orientation;
 mod reference;

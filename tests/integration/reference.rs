@@ -74,7 +74,7 @@ fn manifest() -> Manifest {
 /// Reads a `.npy` file holding a 2-D little-endian `f32` array in C order
 /// (format version 1.0) as a plane `shape[1]` wide and `shape[0]` high. Panics,
 /// naming the file, on anything else.
-fn read_npy(path: &Path) -> Plane {
+pub fn read_npy(path: &Path) -> Plane {
     let bytes = std::fs::read(path).unwrap_or_else(|e| panic!("read {}: {e}", path.display()));
     parse_npy(&bytes).unwrap_or_else(|e| panic!("{}: {e}", path.display()))
 }

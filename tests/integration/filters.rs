@@ -1,0 +1,154 @@
+//! Cross-checks of `box`, `sobel`, `scharr`, `laplace` and `sharpen` against
+//! committed fixtures (tests/reference/make_filters.py, listed in
+//! fixtures/filters/manifest.toml): scipy.ndimage, OpenCV's Python bindings and
+//! scikit-image, each case naming its reference function. Every case runs the
+//! recorded Pumice step through the public step grammar on a linear gray raster.
+//!
+//! Edge cases covered by the fixtures: 1×N and N×1 inputs (one direction is
+//! all halo), a 2×2 input (every window is wider than the image), every border
+//! rule scipy has (OpenCV's filters have no wrap rule, so scharr has four).
+//!
+//! Tolerance, derived as in reference.rs (Higham, "Accuracy and Stability of
+//! Numerical Algorithms", §3.1: an n-term f32 dot product is off by at most
+//! γₙ·Σ|wᵢxᵢ|, γₙ ≈ n·u, u = 2⁻²⁴), with the references exact in f64 and
+//! rounded to f32 once:
+//!
+//! `tol = ε · Σ|K| · M · (taps + passes + 1)`, ε = f32::EPSILON = 2u,
+//!
+//! where M is the largest |input| (or |fill|), Σ|K| the sum of the absolute
+//! 2-D weights and `taps`/`passes` what Pumice's engine does, both recorded per
+//! case by the script:
+//! * box: running sums in f64 (taps 0, one f32 rounding): ε·M·2;
+//! * sobel/scharr x, y: Σ|K| = 8 / 32, 3 + 3 taps in 2 passes; magnitude adds
+//!   both planes' errors and the square root's rounding (14 "taps");
+//! * laplace: the 3×3 stencil by direct 2-D correlation, 9 taps; the LoG as two
+//!   separable runs summed, Σ|K| = 2·Σ|g|·Σ|g''|, taps 2·(2r+1) + 1;
+//! * sharpen: the blur's bound scaled by (1 + amount) plus the difference and
+//!   sum (2 more roundings); compared after clamping Pumice to [0, 1], because
+//!   skimage.filters.unsharp_mask clips its output to [0, 1].
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+use pumice::pipeline::Step;
+use pumice::raster::{Encoding, Layout, Plane, Raster};
+use serde::Deserialize;
+
+use crate::assert_planes_close;
+use crate::harness::worst_difference;
+use crate::reference::read_npy;
+
+fn fixtures() -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference/fixtures/filters")
+}
+
+#[derive(Debug, Deserialize)]
+struct Manifest {
+    numpy_version: String,
+    scipy_version: String,
+    opencv_version: String,
+    skimage_version: String,
+    case: Vec<Case>,
+}
+
+#[derive(Debug, Deserialize)]
+struct Case {
+    id: String,
+    operator: String,
+    reference: String,
+    call: String,
+    step: String,
+    input: String,
+    output: String,
+    shape: [usize; 2],
+    clip: bool,
+    sum_abs: f64,
+    taps: usize,
+    passes: usize,
+}
+
+fn manifest() -> Manifest {
+    let path = fixtures().join("manifest.toml");
+    let text = std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("read {}: {e}", path.display()));
+    toml::from_str(&text).unwrap_or_else(|e| panic!("parse {}: {e}", path.display()))
+}
+
+fn run(case: &Case) -> (Plane, Plane, f32) {
+    let input = read_npy(&fixtures().join(&case.input));
+    let want = read_npy(&fixtures().join(&case.output));
+    assert_eq!([input.height(), input.width()], case.shape, "{}: input shape", case.id);
+    let step = Step::parse(&case.step).unwrap_or_else(|e| panic!("{}: `{}`: {e}", case.id, case.step));
+    let max_in = input.as_slice().iter().fold(0.0f64, |a, &v| a.max(f64::from(v).abs()));
+    // the fill values in the fixtures are 0 or 0.25, never above max_in's range [0, 1)
+    let big_m = max_in.max(0.25);
+    let tol = (f64::from(f32::EPSILON) * case.sum_abs * big_m * (case.taps + case.passes + 1) as f64) as f32;
+    let raster = Raster::new(vec![input], Layout::Gray, Encoding::Linear).unwrap();
+    let out = step.op.apply(raster).unwrap_or_else(|e| panic!("{}: {e}", case.id));
+    let mut got = out.into_planes().remove(0);
+    if case.clip {
+        got.as_mut_slice().iter_mut().for_each(|v| *v = v.clamp(0.0, 1.0));
+    }
+    (got, want, tol)
+}
+
+/// Runs every case of `operator`, prints the worst difference per family next
+/// to its tolerance (`--nocapture`), then asserts each case.
+fn check_all(operator: &str, borders: &[&str]) {
+    let m = manifest();
+    let cases: Vec<&Case> = m.case.iter().filter(|c| c.operator == operator).collect();
+    for border in borders {
+        assert!(cases.iter().any(|c| c.step.contains(&format!("border={border}"))), "no {operator} {border}");
+    }
+    let results: Vec<_> = cases.iter().map(|c| (c, run(c))).collect();
+    let mut families: BTreeMap<String, (f32, f32)> = BTreeMap::new();
+    for (c, (got, want, tol)) in &results {
+        let (d, _, _) = worst_difference(got, want);
+        let family = c.id.rsplit_once('-').map_or(c.id.as_str(), |(f, _)| f).to_string();
+        let e = families.entry(family).or_insert((0.0, f32::INFINITY));
+        e.0 = e.0.max(d);
+        e.1 = e.1.min(*tol);
+    }
+    println!(
+        "{operator} (numpy {}, scipy {}, opencv {}, scikit-image {}):",
+        m.numpy_version, m.scipy_version, m.opencv_version, m.skimage_version
+    );
+    for (family, (worst, tol)) in &families {
+        println!("  {family:<36} worst {worst:.2e}  smallest tolerance {tol:.2e}");
+    }
+    for (c, (got, want, tol)) in &results {
+        assert_planes_close!(got, want, *tol, "{}: {} {}", c.id, c.reference, c.call);
+    }
+}
+
+const ALL: [&str; 5] = ["reflect", "mirror", "replicate", "wrap", "constant"];
+
+#[test]
+fn box_matches_scipy_uniform_filter() {
+    // scipy.ndimage.uniform_filter, size 3 and 7, every mode; tolerance ε·M·2 (above).
+    check_all("box", &ALL);
+}
+
+#[test]
+fn sobel_matches_scipy_sobel() {
+    // scipy.ndimage.sobel along axis 1 and 0, magnitude by numpy.hypot.
+    check_all("sobel", &ALL);
+}
+
+#[test]
+fn scharr_matches_opencv_scharr() {
+    // cv2.Scharr (CV_64F), magnitude by cv2.magnitude; OpenCV has no wrap rule.
+    check_all("scharr", &["reflect", "mirror", "replicate", "constant"]);
+}
+
+#[test]
+fn laplace_matches_scipy_laplace_correlate_and_gaussian_laplace() {
+    // scipy.ndimage.laplace (4 neighbours), scipy.ndimage.correlate (8-neighbour
+    // stencil), scipy.ndimage.gaussian_laplace (sigma 1.5 and 3).
+    check_all("laplace", &ALL);
+}
+
+#[test]
+fn sharpen_matches_skimage_unsharp_mask() {
+    // skimage.filters.unsharp_mask (mode reflect, clipped to [0, 1]).
+    check_all("sharpen", &["reflect"]);
+}

@@ -6,7 +6,9 @@ pub mod colour;
 pub mod edge;
 pub mod filter;
 pub mod geometry;
+pub mod histogram;
 pub mod params;
+pub mod threshold;
 pub mod tone;
 
 use crate::error::Error;

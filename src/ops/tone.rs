@@ -1,10 +1,16 @@
-//! Tone operators that map each sample on its own: `invert` and `gamma`.
-//! They work on encoded (perceptual) values and fuse into one pass.
+//! Tone operators: point maps (`invert`, `gamma`, `window`, `exposure`) that
+//! fuse into one pass, and whole-image ones (`stretch`) that run a reduce pass
+//! (histograms, see `ops::histogram`) before their per-sample map. Colour
+//! mixing belongs to `ops::colour`, thresholds to `ops::threshold`.
+
+use rayon::prelude::*;
 
 use crate::error::{Error, ParamError};
-use crate::ops::params::{Kind, OpSpec, ParamSpec};
-use crate::ops::{Domain, Operator, SampleMap, apply_sample_maps};
+use crate::ops::histogram::{self, Binning};
+use crate::ops::params::{Args, Kind, OpSpec, ParamSpec};
+use crate::ops::{Domain, Operator, POINT_CHUNK, SampleMap, apply_sample_maps};
 use crate::raster::Raster;
+use crate::tile;
 
 /// The text of `pumice ops invert`, also the doc of [`Invert`].
 macro_rules! invert_doc {
@@ -120,10 +126,719 @@ pub static GAMMA: OpSpec = OpSpec {
     build: |a| Ok(Box::new(Gamma::new(a.number("gamma")?)?)),
 };
 
+/// The `light` parameter of tone operators that may run on encoded values
+/// (photos, the default) or on the raw linear values (micrographs).
+const LIGHT_PARAM: ParamSpec = ParamSpec {
+    name: "light",
+    kind: Kind::Choice(&["encoded", "linear"]),
+    default: Some("encoded"),
+    help: "work on encoded (perceptual) values or on linear light",
+};
+
+fn light_domain(a: &Args) -> Result<Domain, ParamError> {
+    Ok(if a.choice("light")? == "linear" { Domain::Linear } else { Domain::Encoded })
+}
+
+/// The text of `pumice ops window`, also the doc of [`Window`].
+macro_rules! window_doc {
+    () => {
+        "Maps the value range [low, high] to full scale [0, 1], optionally with a
+gamma; values outside the range are clipped; alpha is kept.
+
+```text
+t   = clamp((in - low) / (high - low), 0, 1)
+out = t^(1/γ)
+```
+
+low and high are sample values as stored: integer sources read as code/max
+(a 16-bit window from code 1000 to 5000 is low=0.015259,high=0.076295; or give
+units=code16 and low=1000,high=5000). NaN stays NaN.
+Domain: encoded values by default; light=linear works on linear values
+(micrographs). Border: none (point operator). Source: common practice
+(display windowing of medical and scientific images)."
+    };
+}
+
+#[doc = window_doc!()]
+#[derive(Debug)]
+pub struct Window {
+    low: f32,
+    scale: f32,
+    exponent: f32,
+    domain: Domain,
+}
+
+impl Window {
+    /// `low < high`, both finite; `gamma > 0`.
+    pub fn new(low: f64, high: f64, gamma: f64, domain: Domain) -> Result<Window, ParamError> {
+        if !(low.is_finite() && high.is_finite()) || low >= high {
+            return Err(ParamError::new(format!("window needs low < high, got low={low}, high={high}")));
+        }
+        if !(gamma > 0.0 && gamma.is_finite()) {
+            return Err(ParamError::new(format!("gamma must be positive, got {gamma}")));
+        }
+        Ok(Window {
+            low: low as f32,
+            scale: (1.0 / (high - low)) as f32,
+            exponent: (1.0 / gamma) as f32,
+            domain,
+        })
+    }
+}
+
+impl SampleMap for Window {
+    fn map(&self, samples: &mut [f32]) {
+        let (low, scale, e) = (self.low, self.scale, self.exponent);
+        if e == 1.0 {
+            samples.iter_mut().for_each(|s| *s = ((*s - low) * scale).clamp(0.0, 1.0));
+        } else {
+            samples.iter_mut().for_each(|s| *s = ((*s - low) * scale).clamp(0.0, 1.0).powf(e));
+        }
+    }
+}
+
+impl Operator for Window {
+    fn domain(&self) -> Domain {
+        self.domain
+    }
+
+    fn sample_map(&self) -> Option<&dyn SampleMap> {
+        Some(self)
+    }
+
+    fn apply(&self, raster: Raster) -> Result<Raster, Error> {
+        Ok(apply_sample_maps(raster, &[self]))
+    }
+}
+
+pub static WINDOW: OpSpec = OpSpec {
+    name: "window",
+    family: "tone",
+    summary: "map the value range [low, high] to full scale, optional gamma",
+    doc: window_doc!(),
+    main: None,
+    params: &[
+        ParamSpec { name: "low", kind: Kind::real(-1e30, 1e30), default: None, help: "value mapped to 0" },
+        ParamSpec { name: "high", kind: Kind::real(-1e30, 1e30), default: None, help: "value mapped to 1" },
+        ParamSpec {
+            name: "gamma",
+            kind: Kind::positive(0.0, 100.0),
+            default: Some("1"),
+            help: "γ after the window",
+        },
+        ParamSpec {
+            name: "units",
+            kind: Kind::Choice(&["value", "code8", "code16"]),
+            default: Some("value"),
+            help: "low/high as stored values, or as 8-bit (÷255) or 16-bit (÷65535) codes",
+        },
+        LIGHT_PARAM,
+    ],
+    build: build_window,
+};
+
+fn build_window(a: &Args) -> Result<Box<dyn Operator>, ParamError> {
+    let div = match a.choice("units")? {
+        "code8" => 255.0,
+        "code16" => 65535.0,
+        _ => 1.0,
+    };
+    Ok(Box::new(Window::new(
+        a.number("low")? / div,
+        a.number("high")? / div,
+        a.number("gamma")?,
+        light_domain(a)?,
+    )?))
+}
+
+/// The text of `pumice ops exposure`, also the doc of [`Exposure`].
+macro_rules! exposure_doc {
+    () => {
+        "Exposure change in photographic stops: each stop doubles (or halves) the
+light; alpha is kept. Values are not clipped (the encoder clips on output).
+
+```text
+out = in · 2^stops
+```
+
+Domain: linear light (a stop is a factor of light, so it scales linear values).
+Border: none (point operator). Source: common practice (photographic stops)."
+    };
+}
+
+#[doc = exposure_doc!()]
+#[derive(Debug)]
+pub struct Exposure {
+    factor: f32,
+}
+
+impl Exposure {
+    pub fn new(stops: f64) -> Result<Exposure, ParamError> {
+        if !stops.is_finite() || stops.abs() > 64.0 {
+            return Err(ParamError::new(format!("stops must be within ±64, got {stops}")));
+        }
+        Ok(Exposure { factor: 2f64.powf(stops) as f32 })
+    }
+}
+
+impl SampleMap for Exposure {
+    fn map(&self, samples: &mut [f32]) {
+        let f = self.factor;
+        samples.iter_mut().for_each(|s| *s *= f);
+    }
+}
+
+impl Operator for Exposure {
+    fn domain(&self) -> Domain {
+        Domain::Linear
+    }
+
+    fn sample_map(&self) -> Option<&dyn SampleMap> {
+        Some(self)
+    }
+
+    fn apply(&self, raster: Raster) -> Result<Raster, Error> {
+        Ok(apply_sample_maps(raster, &[self]))
+    }
+}
+
+pub static EXPOSURE: OpSpec = OpSpec {
+    name: "exposure",
+    family: "tone",
+    summary: "exposure change in stops (×2 per stop, linear light)",
+    doc: exposure_doc!(),
+    main: Some("stops"),
+    params: &[ParamSpec {
+        name: "stops",
+        kind: Kind::real(-64.0, 64.0),
+        default: None,
+        help: "stops of exposure; +1 doubles the light",
+    }],
+    build: |a| Ok(Box::new(Exposure::new(a.number("stops")?)?)),
+};
+
+/// The text of `pumice ops stretch`, also the doc of [`Stretch`].
+macro_rules! stretch_doc {
+    () => {
+        "Percentile contrast stretch: the low-th percentile goes to 0, the high-th
+to 1, values beyond are clipped; alpha is kept.
+
+```text
+lo, hi = percentile(in, low), percentile(in, high)    (numpy's linear rule: rank p/100·(N-1))
+out    = clamp((in - lo) / (hi - lo), 0, 1)
+```
+
+linked=false stretches each colour channel by its own percentiles (also
+balances a colour cast); linked=true takes them from all colour channels
+pooled, keeping the balance. Percentiles come from a histogram pass: exact for
+8- and 16-bit sources (one bin per code), 65536 equal bins between the
+minimum and maximum for float data (error at most one bin width). NaN and ±∞
+are not counted and NaN stays NaN. A channel whose two percentiles are equal
+(a constant image) is left unchanged.
+Domain: encoded values by default; light=linear for linear data.
+Border: none (whole-image reduce, then a point map). Source: common practice."
+    };
+}
+
+#[doc = stretch_doc!()]
+#[derive(Debug)]
+pub struct Stretch {
+    low: f64,
+    high: f64,
+    linked: bool,
+    domain: Domain,
+}
+
+impl Stretch {
+    /// Percentiles in percent, `0 ≤ low < high ≤ 100`.
+    pub fn new(low: f64, high: f64, linked: bool, domain: Domain) -> Result<Stretch, ParamError> {
+        if !(0.0..=100.0).contains(&low) || !(0.0..=100.0).contains(&high) {
+            return Err(ParamError::new(format!(
+                "percentiles must be within 0..100, got low={low}, high={high}"
+            )));
+        }
+        if low >= high {
+            return Err(ParamError::new(format!(
+                "percentiles out of order: low={low} must be below high={high}"
+            )));
+        }
+        Ok(Stretch { low, high, linked, domain })
+    }
+
+    /// The (lo, hi) values for the samples of `planes`, or `None` when they
+    /// hold no finite sample.
+    fn limits(&self, planes: &[&[f32]], levels: Option<u32>) -> Option<(f64, f64)> {
+        let b = Binning::for_samples(planes, levels, histogram::FLOAT_BINS)?;
+        let h = histogram::histogram(planes, &b);
+        Some((histogram::percentile(&h, &b, self.low)?, histogram::percentile(&h, &b, self.high)?))
+    }
+}
+
+/// `clamp((v − lo)/(hi − lo), 0, 1)` over `plane` in parallel; identity when hi ≤ lo.
+fn map_range(plane: &mut [f32], lo: f64, hi: f64) {
+    if hi <= lo {
+        return;
+    }
+    let (lo, scale) = (lo as f32, (1.0 / (hi - lo)) as f32);
+    plane.par_chunks_mut(POINT_CHUNK).for_each(|c| {
+        c.iter_mut().for_each(|s| *s = ((*s - lo) * scale).clamp(0.0, 1.0));
+    });
+}
+
+impl Operator for Stretch {
+    fn domain(&self) -> Domain {
+        self.domain
+    }
+
+    fn apply(&self, mut raster: Raster) -> Result<Raster, Error> {
+        let levels = raster.levels;
+        let planes = raster.colour_planes_mut();
+        if self.linked {
+            let all: Vec<&[f32]> = planes.iter().map(|p| p.as_slice()).collect();
+            if let Some((lo, hi)) = self.limits(&all, levels) {
+                planes.iter_mut().for_each(|p| map_range(p.as_mut_slice(), lo, hi));
+            }
+        } else {
+            for p in planes.iter_mut() {
+                if let Some((lo, hi)) = self.limits(&[p.as_slice()], levels) {
+                    map_range(p.as_mut_slice(), lo, hi);
+                }
+            }
+        }
+        Ok(raster)
+    }
+}
+
+pub static STRETCH: OpSpec = OpSpec {
+    name: "stretch",
+    family: "tone",
+    summary: "percentile contrast stretch (0.5 % → 0, 99.5 % → 1)",
+    doc: stretch_doc!(),
+    main: None,
+    params: &[
+        ParamSpec {
+            name: "low",
+            kind: Kind::real(0.0, 100.0),
+            default: Some("0.5"),
+            help: "percentile mapped to 0",
+        },
+        ParamSpec {
+            name: "high",
+            kind: Kind::real(0.0, 100.0),
+            default: Some("99.5"),
+            help: "percentile mapped to 1",
+        },
+        ParamSpec {
+            name: "linked",
+            kind: Kind::Bool,
+            default: Some("false"),
+            help: "one pair of percentiles for all colour channels",
+        },
+        LIGHT_PARAM,
+    ],
+    build: |a| {
+        Ok(Box::new(Stretch::new(a.number("low")?, a.number("high")?, a.bool("linked")?, light_domain(a)?)?))
+    },
+};
+
+/// The text of `pumice ops equalize`, also the doc of [`Equalize`].
+macro_rules! equalize_doc {
+    () => {
+        "Global histogram equalisation: each value becomes the fraction of samples
+at or below it, so the output histogram is as flat as the data allow; alpha is kept.
+
+```text
+out = cdf(in) = #{samples ≤ in} / N                 (integer sources: exact, per code)
+out = interp(in; bin centres, cdf at the bins)      (float data)
+```
+
+Binning: one bin per code for 8- and 16-bit sources (256 or 65536 bins, so a
+16-bit image is not reduced to 8 bits); float data use 65536 equal bins between
+the minimum and maximum finite sample and interpolate linearly between bin
+centres (clamped at the ends). The darkest value maps to its own share
+cdf(min) > 0, not to 0. NaN is not counted and stays NaN.
+Colour input: per-channel=false (default) equalises the BT.709 luma
+Y' = 0.2126 R' + 0.7152 G' + 0.0722 B' and scales R', G', B' by Y'new/Y', which
+keeps hue and saturation (channels clip at 1; a black pixel becomes the gray
+Y'new); per-channel=true equalises each channel on its own.
+Domain: encoded values. Border: none (whole-image reduce, then a point map).
+Source: R. C. Gonzalez and R. E. Woods, Digital Image Processing, §3.3.1
+(histogram equalisation); the cdf convention is scikit-image's
+`exposure.equalize_hist`."
+    };
+}
+
+#[doc = equalize_doc!()]
+#[derive(Debug)]
+pub struct Equalize {
+    per_channel: bool,
+}
+
+impl Equalize {
+    pub fn new(per_channel: bool) -> Equalize {
+        Equalize { per_channel }
+    }
+}
+
+/// The equalising map of one set of samples.
+struct CdfMap {
+    binning: Binning,
+    /// cdf at each bin, as f32.
+    cdf: Vec<f32>,
+}
+
+impl CdfMap {
+    fn new(planes: &[&[f32]], levels: Option<u32>) -> Option<CdfMap> {
+        let binning = Binning::for_samples(planes, levels, histogram::FLOAT_BINS)?;
+        let counts = histogram::histogram(planes, &binning);
+        let total = counts.iter().sum::<u64>() as f64;
+        let mut run = 0u64;
+        let cdf = counts
+            .iter()
+            .map(|&c| {
+                run += c;
+                (run as f64 / total) as f32
+            })
+            .collect();
+        Some(CdfMap { binning, cdf })
+    }
+
+    #[inline]
+    fn apply(&self, v: f32) -> f32 {
+        if !v.is_finite() {
+            return if v.is_nan() {
+                v
+            } else if v > 0.0 {
+                1.0
+            } else {
+                self.cdf[0]
+            };
+        }
+        match self.binning {
+            Binning::Codes { .. } => self.cdf[self.binning.index(v)],
+            Binning::Range { lo, hi, bins } => {
+                let pos = (f64::from(v) - lo) / (hi - lo) * bins as f64 - 0.5;
+                if pos <= 0.0 {
+                    return self.cdf[0];
+                }
+                let i = pos.floor() as usize;
+                if i + 1 >= bins {
+                    return self.cdf[bins - 1];
+                }
+                let t = (pos - i as f64) as f32;
+                self.cdf[i] + (self.cdf[i + 1] - self.cdf[i]) * t
+            }
+        }
+    }
+
+    fn apply_in_place(&self, plane: &mut [f32]) {
+        plane.par_chunks_mut(POINT_CHUNK).for_each(|c| c.iter_mut().for_each(|s| *s = self.apply(*s)));
+    }
+}
+
+impl Operator for Equalize {
+    fn domain(&self) -> Domain {
+        Domain::Encoded
+    }
+
+    fn apply(&self, mut raster: Raster) -> Result<Raster, Error> {
+        let levels = raster.levels;
+        let colour = raster.layout().colour_channels();
+        if colour == 1 || self.per_channel {
+            for p in raster.colour_planes_mut() {
+                if let Some(m) = CdfMap::new(&[p.as_slice()], levels) {
+                    m.apply_in_place(p.as_mut_slice());
+                }
+            }
+            return Ok(raster);
+        }
+        through_luma(raster, |y| {
+            if let Some(m) = CdfMap::new(&[y.as_slice()], None) {
+                m.apply_in_place(y.as_mut_slice());
+            }
+            Ok(())
+        })
+    }
+}
+
+/// Applies a lightness change to colour: computes the BT.709 luma Y' of the
+/// three colour planes, lets `change` rewrite it in place, then scales R', G', B'
+/// by Y'new/Y' (clipped at 1; where Y' = 0 the pixel becomes the gray Y'new).
+fn through_luma(
+    mut raster: Raster,
+    change: impl FnOnce(&mut crate::raster::Plane) -> Result<(), Error>,
+) -> Result<Raster, Error> {
+    let (w, h) = (raster.width(), raster.height());
+    let planes = raster.colour_planes_mut();
+    let mut y = crate::raster::Plane::zeros(w, h)?;
+    {
+        let (r, g, b) = (planes[0].as_slice(), planes[1].as_slice(), planes[2].as_slice());
+        y.as_mut_slice().par_chunks_mut(POINT_CHUNK).enumerate().for_each(|(i, c)| {
+            let s = i * POINT_CHUNK..i * POINT_CHUNK + c.len();
+            crate::color::luma::weighted_sum(
+                crate::color::luma::BT709,
+                &r[s.clone()],
+                &g[s.clone()],
+                &b[s],
+                c,
+            );
+        });
+    }
+    let old = y.clone();
+    change(&mut y)?;
+    let (p0, rest) = planes.split_at_mut(1);
+    let (p1, p2) = rest.split_at_mut(1);
+    p0[0]
+        .as_mut_slice()
+        .par_chunks_mut(POINT_CHUNK)
+        .zip(p1[0].as_mut_slice().par_chunks_mut(POINT_CHUNK))
+        .zip(p2[0].as_mut_slice().par_chunks_mut(POINT_CHUNK))
+        .zip(old.as_slice().par_chunks(POINT_CHUNK).zip(y.as_slice().par_chunks(POINT_CHUNK)))
+        .for_each(|(((r, g), b), (old, new))| {
+            for i in 0..old.len() {
+                if old[i] > 0.0 {
+                    let k = new[i] / old[i];
+                    r[i] = (r[i] * k).min(1.0);
+                    g[i] = (g[i] * k).min(1.0);
+                    b[i] = (b[i] * k).min(1.0);
+                } else if !old[i].is_nan() {
+                    (r[i], g[i], b[i]) = (new[i], new[i], new[i]);
+                }
+            }
+        });
+    Ok(raster)
+}
+
+pub static EQUALIZE: OpSpec = OpSpec {
+    name: "equalize",
+    family: "tone",
+    summary: "global histogram equalisation (luma of colour, or per channel)",
+    doc: equalize_doc!(),
+    main: None,
+    params: &[ParamSpec {
+        name: "per-channel",
+        kind: Kind::Bool,
+        default: Some("false"),
+        help: "equalise R, G, B separately instead of the luma",
+    }],
+    build: |a| Ok(Box::new(Equalize::new(a.bool("per-channel")?))),
+};
+
+/// The text of `pumice ops clahe`, also the doc of [`Clahe`].
+macro_rules! clahe_doc {
+    () => {
+        "Contrast-limited adaptive histogram equalisation: the image is cut into a
+tiles×tiles grid; each tile gets its own clipped equalising map, and each
+pixel's value is interpolated bilinearly between the maps of the four nearest
+tile centres, so there are no seams; alpha is kept.
+
+```text
+h_t(b)   = histogram of tile t, bins equal bins over [0, 1] (b = floor(v·bins))
+limit    = max(1, clip · pixels in the tile)          clip = 1 turns clipping off
+h'_t(b)  = min(h_t(b), limit) + excess_t / bins       excess_t = Σ max(h_t(b) − limit, 0)
+map_t(b) = Σ_{j ≤ b} h'_t(j) / pixels in the tile
+out      = Σ over the 4 nearest tile centres of bilinear weight · map_t(b(in))
+```
+
+Tiles: tile i covers columns floor(i·W/tiles) .. floor((i+1)·W/tiles) (and the
+same for rows); its centre is the middle of that span. Pixels outside the
+outermost centres use the nearest centres (constant extrapolation). Values
+outside [0, 1] fall in the end bins; NaN stays NaN. Colour input follows
+`equalize`: the BT.709 luma is equalised and R', G', B' scaled by Y'new/Y',
+or each channel with per-channel=true.
+Domain: encoded values. Border: none (tiles cover the image; no halo).
+Source: K. Zuiderveld, \"Contrast limited adaptive histogram equalization\",
+Graphics Gems IV, pp. 474–485, 1994 (clip limit with even redistribution of
+the excess in one pass; bilinear interpolation of tile mappings)."
+    };
+}
+
+#[doc = clahe_doc!()]
+#[derive(Debug)]
+pub struct Clahe {
+    tiles: usize,
+    clip: f64,
+    bins: usize,
+    per_channel: bool,
+}
+
+impl Clahe {
+    pub fn new(tiles: usize, clip: f64, bins: usize, per_channel: bool) -> Result<Clahe, ParamError> {
+        if !(1..=256).contains(&tiles) {
+            return Err(ParamError::new(format!("tiles must be within 1..256, got {tiles}")));
+        }
+        if !(clip > 0.0 && clip <= 1.0) {
+            return Err(ParamError::new(format!("clip must be within (0, 1], got {clip}")));
+        }
+        if !(2..=65536).contains(&bins) {
+            return Err(ParamError::new(format!("bins must be within 2..65536, got {bins}")));
+        }
+        Ok(Clahe { tiles, clip, bins, per_channel })
+    }
+
+    #[inline]
+    fn bin(&self, v: f32) -> usize {
+        ((v * self.bins as f32).max(0.0) as usize).min(self.bins - 1)
+    }
+
+    /// The tile spans along an axis of `n` samples: `min(tiles, n)` tiles.
+    fn spans(&self, n: usize) -> Vec<(usize, usize)> {
+        let t = self.tiles.min(n);
+        (0..t).map(|i| (i * n / t, (i + 1) * n / t)).collect()
+    }
+
+    fn plane(&self, p: &mut crate::raster::Plane) {
+        let (w, h) = (p.width(), p.height());
+        let (xs, ys) = (self.spans(w), self.spans(h));
+        let bins = self.bins;
+        let src = p.clone();
+        // One map per tile, row-major over the grid.
+        let maps: Vec<Vec<f32>> = (0..xs.len() * ys.len())
+            .into_par_iter()
+            .map(|t| {
+                let ((x0, x1), (y0, y1)) = (xs[t % xs.len()], ys[t / xs.len()]);
+                let mut hist = vec![0u64; bins];
+                let mut n = 0u64;
+                for y in y0..y1 {
+                    for &v in &src.row(y)[x0..x1] {
+                        if !v.is_nan() {
+                            hist[self.bin(v)] += 1;
+                            n += 1;
+                        }
+                    }
+                }
+                let limit = (self.clip * n as f64).max(1.0);
+                let mut excess = 0.0f64;
+                let mut clipped: Vec<f64> = hist
+                    .iter()
+                    .map(|&c| {
+                        let c = c as f64;
+                        excess += (c - limit).max(0.0);
+                        c.min(limit)
+                    })
+                    .collect();
+                let add = excess / bins as f64;
+                let mut run = 0.0f64;
+                let total = n.max(1) as f64;
+                clipped.iter_mut().for_each(|c| {
+                    run += *c + add;
+                    *c = run / total;
+                });
+                clipped.into_iter().map(|c| c.min(1.0) as f32).collect()
+            })
+            .collect();
+        // For each coordinate: the two neighbouring tile centres and the weight of the second.
+        let neighbours = |spans: &[(usize, usize)], n: usize| -> Vec<(usize, usize, f32)> {
+            let centres: Vec<f64> = spans.iter().map(|&(a, b)| (a + b) as f64 / 2.0 - 0.5).collect();
+            (0..n)
+                .map(|i| {
+                    let x = i as f64;
+                    let k = centres.iter().rposition(|&c| c <= x);
+                    match k {
+                        None => (0, 0, 0.0),
+                        Some(k) if k + 1 >= centres.len() => (k, k, 0.0),
+                        Some(k) => (k, k + 1, ((x - centres[k]) / (centres[k + 1] - centres[k])) as f32),
+                    }
+                })
+                .collect()
+        };
+        let (nx, ny) = (neighbours(&xs, w), neighbours(&ys, h));
+        let tx = xs.len();
+        tile::for_each_band(p, tile::band_rows(w, 0), |y0, band| {
+            for (by, row) in band.chunks_exact_mut(w).enumerate() {
+                let (ty0, ty1, fy) = ny[y0 + by];
+                let src_row = src.row(y0 + by);
+                for (x, o) in row.iter_mut().enumerate() {
+                    let v = src_row[x];
+                    if v.is_nan() {
+                        continue;
+                    }
+                    let b = self.bin(v);
+                    let (tx0, tx1, fx) = nx[x];
+                    let m = |ty: usize, txx: usize| maps[ty * tx + txx][b];
+                    let top = m(ty0, tx0) + (m(ty0, tx1) - m(ty0, tx0)) * fx;
+                    let bottom = m(ty1, tx0) + (m(ty1, tx1) - m(ty1, tx0)) * fx;
+                    *o = top + (bottom - top) * fy;
+                }
+            }
+        });
+    }
+}
+
+impl Operator for Clahe {
+    fn domain(&self) -> Domain {
+        Domain::Encoded
+    }
+
+    fn apply(&self, mut raster: Raster) -> Result<Raster, Error> {
+        if raster.layout().colour_channels() == 1 || self.per_channel {
+            raster.colour_planes_mut().iter_mut().for_each(|p| self.plane(p));
+            return Ok(raster);
+        }
+        through_luma(raster, |y| {
+            self.plane(y);
+            Ok(())
+        })
+    }
+}
+
+pub static CLAHE: OpSpec = OpSpec {
+    name: "clahe",
+    family: "tone",
+    summary: "contrast-limited adaptive histogram equalisation (tile grid, clip limit)",
+    doc: clahe_doc!(),
+    main: None,
+    params: &[
+        ParamSpec {
+            name: "tiles",
+            kind: Kind::int(1.0, 256.0),
+            default: Some("8"),
+            help: "tiles along each side",
+        },
+        ParamSpec {
+            name: "clip",
+            kind: Kind::positive(0.0, 1.0),
+            default: Some("0.01"),
+            help: "largest share of a tile's pixels one bin may hold (1 = no clipping)",
+        },
+        ParamSpec {
+            name: "bins",
+            kind: Kind::int(2.0, 65536.0),
+            default: Some("256"),
+            help: "histogram bins",
+        },
+        ParamSpec {
+            name: "per-channel",
+            kind: Kind::Bool,
+            default: Some("false"),
+            help: "equalise R, G, B separately instead of the luma",
+        },
+    ],
+    build: |a| {
+        Ok(Box::new(Clahe::new(
+            a.int("tiles")? as usize,
+            a.number("clip")?,
+            a.int("bins")? as usize,
+            a.bool("per-channel")?,
+        )?))
+    },
+};
+
 #[cfg(test)]
 mod tests {
-    //! Edge cases: 0 and 1 fixed, negative samples, γ = 1 identity, double invert.
+    //! Edge cases: gamma fixes 0 and 1 and keeps signs, γ = 1 identity, double
+    //! invert exact; window: low ≥ high rejected, values outside clipped, NaN
+    //! kept, code units; exposure: 0 stops identity, ±1 stop exact factors;
+    //! stretch: percentiles out of order or outside 0..100 rejected, a 1×1 and a
+    //! constant image unchanged, NaN ignored, alpha kept, linked versus per channel,
+    //! exact percentiles on 8-bit codes; equalize: 1×1 and constant images go
+    //! to 1, 16-bit codes keep their 65536 bins, the output histogram is flat,
+    //! colour keeps its channel ratios (hue and saturation), NaN kept; clahe:
+    //! one tile with no clipping equals equalize (up to the bin grid), a 1×1
+    //! image, more tiles than pixels, bad tiles/clip rejected, constant tiles,
+    //! no seams (interpolated maps are continuous), serial = parallel.
     use super::*;
+    use crate::raster::{Encoding, Layout, Plane};
 
     #[test]
     fn gamma_fixes_the_ends_and_keeps_signs() {
@@ -144,5 +859,242 @@ mod tests {
         for (k, v) in s.iter().enumerate() {
             assert_eq!((v * 255.0).round() as usize, k);
         }
+    }
+
+    fn run(step: &str, r: Raster) -> Raster {
+        crate::pipeline::Step::parse(step).unwrap().op.apply(r).unwrap()
+    }
+
+    fn step_err(step: &str) -> String {
+        crate::pipeline::Step::parse(step).unwrap_err().to_string()
+    }
+
+    #[test]
+    fn window_maps_clips_and_rejects_empty_ranges() {
+        let w = Window::new(0.2, 0.6, 1.0, Domain::Encoded).unwrap();
+        let mut s = [0.0f32, 0.2, 0.4, 0.6, 1.0, f32::NAN];
+        w.map(&mut s);
+        assert_eq!(&s[..5], &[0.0, 0.0, 0.5, 1.0, 1.0]);
+        assert!(s[5].is_nan());
+        let e = step_err("window:low=0.6,high=0.2");
+        assert!(e.contains("low < high"), "{e}");
+        assert!(step_err("window:low=0.5,high=0.5").contains("low < high"));
+        // 16-bit codes: code 1000 → 0, 5000 → 1, 3000 → 0.5.
+        let p = Plane::from_vec(3, 1, vec![1000.0 / 65535.0, 3000.0 / 65535.0, 5000.0 / 65535.0]).unwrap();
+        let r = Raster::new(vec![p], Layout::Gray, Encoding::Linear).unwrap();
+        let out = run("window:low=1000,high=5000,units=code16,light=linear", r);
+        let got = out.planes()[0].as_slice();
+        assert!(got[0].abs() < 1e-6 && (got[1] - 0.5).abs() < 1e-5 && (got[2] - 1.0).abs() < 1e-6, "{got:?}");
+        // With γ = 2 the middle of the window becomes 0.5^(1/2).
+        let mut m = [0.4f32];
+        Window::new(0.2, 0.6, 2.0, Domain::Encoded).unwrap().map(&mut m);
+        assert!((m[0] - 0.5f32.sqrt()).abs() < 1e-6);
+    }
+
+    #[test]
+    fn exposure_scales_by_powers_of_two() {
+        let mut s = [0.25f32, 1.0];
+        Exposure::new(1.0).unwrap().map(&mut s);
+        assert_eq!(s, [0.5, 2.0]);
+        Exposure::new(-2.0).unwrap().map(&mut s);
+        assert_eq!(s, [0.125, 0.5]);
+        Exposure::new(0.0).unwrap().map(&mut s);
+        assert_eq!(s, [0.125, 0.5]);
+        assert_eq!(Exposure::new(1.0).unwrap().domain(), Domain::Linear);
+        assert!(Exposure::new(f64::NAN).is_err());
+    }
+
+    fn codes_rgba(w: usize, h: usize, f: impl Fn(usize, usize, usize) -> u32) -> Raster {
+        let planes = (0..4)
+            .map(|c| {
+                Plane::from_fn(w, h, |x, y| if c == 3 { 0.5 } else { f(c, x, y) as f32 / 255.0 }).unwrap()
+            })
+            .collect();
+        let mut r = Raster::new(planes, Layout::Rgba, Encoding::Srgb).unwrap();
+        r.levels = Some(255);
+        r
+    }
+
+    #[test]
+    fn stretch_rejects_bad_percentiles() {
+        assert!(step_err("stretch:low=60,high=40").contains("out of order"));
+        assert!(step_err("stretch:low=50,high=50").contains("out of order"));
+        assert!(step_err("stretch:low=-1").contains("low"));
+        assert!(step_err("stretch:high=101").contains("high"));
+    }
+
+    #[test]
+    fn stretch_leaves_tiny_and_constant_images_alone() {
+        let one = codes_rgba(1, 1, |c, _, _| 10 * c as u32);
+        assert_eq!(run("stretch", one.clone()).planes(), one.planes());
+        let flat = codes_rgba(5, 4, |_, _, _| 77);
+        assert_eq!(run("stretch:low=0,high=100", flat.clone()).planes(), flat.planes());
+    }
+
+    #[test]
+    fn stretch_matches_exact_percentiles_and_keeps_alpha() {
+        // Codes 0..=199 in red, 50..=249 in green, constant in blue, 20×10 pixels.
+        let r = codes_rgba(20, 10, |c, x, y| match c {
+            0 => (y * 20 + x) as u32,
+            1 => 50 + (y * 20 + x) as u32,
+            _ => 9,
+        });
+        let out = run("stretch:low=10,high=90", r.clone());
+        // numpy.percentile(arange(200), [10, 90]) = 19.9, 179.1 (rank p/100·199).
+        for (c, offset) in [(0usize, 0.0f64), (1, 50.0)] {
+            let (lo, hi) = ((19.9 + offset) / 255.0, (179.1 + offset) / 255.0);
+            for (v, o) in r.planes()[c].as_slice().iter().zip(out.planes()[c].as_slice()) {
+                let want = ((f64::from(*v) - lo) / (hi - lo)).clamp(0.0, 1.0);
+                assert!((f64::from(*o) - want).abs() < 1e-5, "channel {c}: {o} vs {want}");
+            }
+        }
+        assert_eq!(out.planes()[2], r.planes()[2]);
+        assert_eq!(out.planes()[3], r.planes()[3]);
+        // Linked: percentiles of all three channels pooled, so blue (constant 9) moves too.
+        let linked = run("stretch:low=0,high=100,linked=true", r.clone());
+        let blue = linked.planes()[2].get(0, 0);
+        assert!((f64::from(blue) - 9.0 / 249.0).abs() < 1e-6, "{blue}");
+        assert_eq!(linked.planes()[0].get(0, 0), 0.0);
+        assert_eq!(linked.planes()[1].get(19, 9), 1.0);
+    }
+
+    #[test]
+    fn stretch_ignores_nan_on_float_data() {
+        let p = Plane::from_vec(4, 1, vec![0.2, f32::NAN, 0.4, 0.6]).unwrap();
+        let r = Raster::new(vec![p], Layout::Gray, Encoding::Linear).unwrap();
+        let out = run("stretch:low=0,high=100,light=linear", r);
+        let s = out.planes()[0].as_slice();
+        assert!(
+            s[0].abs() < 1e-4 && s[1].is_nan() && (s[2] - 0.5).abs() < 1e-4 && (s[3] - 1.0).abs() < 1e-4,
+            "{s:?}"
+        );
+    }
+
+    #[test]
+    fn equalize_edge_cases() {
+        let one = codes_rgba(1, 1, |_, _, _| 40);
+        let out = run("equalize", one);
+        // cdf(the only value) = 1: the pixel's luma becomes 1 and the channels scale with it.
+        assert!(out.planes()[..3].iter().all(|p| (p.get(0, 0) - 1.0).abs() < 1e-6));
+        assert_eq!(out.planes()[3].get(0, 0), 0.5);
+        let flat =
+            Raster::new(vec![Plane::filled(4, 4, 0.3).unwrap()], Layout::Gray, Encoding::Srgb).unwrap();
+        assert!(run("equalize", flat).planes()[0].as_slice().iter().all(|&v| v == 1.0));
+        let nan = Raster::new(
+            vec![Plane::from_vec(3, 1, vec![0.1, f32::NAN, 0.9]).unwrap()],
+            Layout::Gray,
+            Encoding::Srgb,
+        )
+        .unwrap();
+        let out = run("equalize", nan);
+        let s = out.planes()[0].as_slice();
+        assert!((s[0] - 0.5).abs() < 1e-6 && s[1].is_nan() && s[2] == 1.0, "{s:?}");
+    }
+
+    #[test]
+    fn equalize_keeps_sixteen_bit_precision_and_flattens() {
+        // 65536 distinct 16-bit codes, each once, squeezed into the bottom quarter
+        // by a square law: equalisation must give back k/65536 for the k-th code
+        // (each code its own bin), which an 8-bit histogram could not.
+        let codes: Vec<f32> = (0..65536u32).map(|k| k as f32 / 65535.0).collect();
+        let squeezed: Vec<f32> = codes.iter().map(|v| v * v * 0.25).collect();
+        let mut r = Raster::new(
+            vec![Plane::from_vec(256, 256, codes.clone()).unwrap()],
+            Layout::Gray,
+            Encoding::Srgb,
+        )
+        .unwrap();
+        r.levels = Some(65535);
+        let out = run("equalize", r);
+        for (k, v) in out.planes()[0].as_slice().iter().enumerate() {
+            assert!((f64::from(*v) - (k + 1) as f64 / 65536.0).abs() < 1e-6, "code {k}: {v}");
+        }
+        // Float data (no codes): 65536 bins, interpolated; the output histogram in
+        // 16 bins is flat to within one bin's share of the float binning.
+        let f = Raster::new(vec![Plane::from_vec(256, 256, squeezed).unwrap()], Layout::Gray, Encoding::Srgb)
+            .unwrap();
+        let out = run("equalize", f);
+        let mut h = [0usize; 16];
+        for &v in out.planes()[0].as_slice() {
+            h[((v * 16.0) as usize).min(15)] += 1;
+        }
+        let (lo, hi) = (*h.iter().min().unwrap(), *h.iter().max().unwrap());
+        assert!(hi - lo <= 2 * 65536 / 256, "{h:?}");
+    }
+
+    #[test]
+    fn equalize_colour_keeps_channel_ratios() {
+        let r = codes_rgba(16, 8, |c, x, y| ((x * 8 + y) * (c + 1) % 200) as u32 + 20);
+        let out = run("equalize", r.clone());
+        for i in 0..128 {
+            let a: Vec<f32> = (0..3).map(|c| r.planes()[c].as_slice()[i]).collect();
+            let b: Vec<f32> = (0..3).map(|c| out.planes()[c].as_slice()[i]).collect();
+            if b.iter().all(|&v| v < 1.0) {
+                assert!((b[0] / b[1] - a[0] / a[1]).abs() < 1e-4 && (b[2] / b[1] - a[2] / a[1]).abs() < 1e-4);
+            }
+        }
+        let per = run("equalize:per-channel=true", r);
+        assert_eq!(per.planes()[3], codes_rgba(16, 8, |_, _, _| 0).planes()[3]);
+        // Each channel on its own: its largest value maps to 1.
+        assert!(per.planes()[..3].iter().all(|p| p.as_slice().contains(&1.0)));
+    }
+
+    #[test]
+    fn clahe_with_one_unclipped_tile_is_binned_equalize() {
+        // 256 bins on 8-bit codes: bin(code/255) = code except code 255 → 255, so
+        // each code has its own bin and one unclipped tile gives cdf(code) exactly.
+        let p = Plane::from_fn(40, 30, |x, y| ((x * 7 + y * 3) % 256) as f32 / 255.0).unwrap();
+        let mut r = Raster::new(vec![p], Layout::Gray, Encoding::Srgb).unwrap();
+        r.levels = Some(255);
+        let a = run("clahe:tiles=1,clip=1", r.clone());
+        let b = run("equalize", r);
+        let (d, _, _) = worst(&a.planes()[0], &b.planes()[0]);
+        assert!(d < 1e-6, "{d}");
+    }
+
+    #[test]
+    fn clahe_edge_cases_and_errors() {
+        let one = Raster::new(vec![Plane::filled(1, 1, 0.4).unwrap()], Layout::Gray, Encoding::Srgb).unwrap();
+        assert_eq!(run("clahe", one).planes()[0].get(0, 0), 1.0);
+        let small = Raster::new(
+            vec![Plane::from_fn(3, 2, |x, y| (x + y) as f32 / 4.0).unwrap()],
+            Layout::Gray,
+            Encoding::Srgb,
+        )
+        .unwrap();
+        let out = run("clahe:tiles=16", small);
+        assert!(out.planes()[0].as_slice().iter().all(|v| (0.0..=1.0).contains(v)));
+        assert!(step_err("clahe:tiles=0").contains("tiles"));
+        assert!(step_err("clahe:clip=0").contains("clip"));
+        assert!(step_err("clahe:bins=1").contains("bins"));
+    }
+
+    #[test]
+    fn clahe_is_continuous_and_thread_independent() {
+        let p =
+            Plane::from_fn(200, 120, |x, y| (0.3 + 0.4 * ((x as f32 / 200.0) * (y as f32 / 120.0))).min(1.0))
+                .unwrap();
+        let r = Raster::new(vec![p], Layout::Gray, Encoding::Srgb).unwrap();
+        let out = run("clahe:tiles=4,clip=0.02", r.clone());
+        // A smooth ramp stays smooth: neighbouring outputs differ by a small step
+        // (no seams at tile borders).
+        let o = &out.planes()[0];
+        for y in 0..120 {
+            for x in 1..200 {
+                assert!((o.get(x, y) - o.get(x - 1, y)).abs() < 0.05, "jump at ({x}, {y})");
+            }
+        }
+        let serial = rayon::ThreadPoolBuilder::new().num_threads(1).build().unwrap();
+        assert_eq!(serial.install(|| run("clahe:tiles=4,clip=0.02", r)).planes(), out.planes());
+    }
+
+    fn worst(a: &Plane, b: &Plane) -> (f32, usize, usize) {
+        let mut best = (0.0f32, 0, 0);
+        for (i, (p, q)) in a.as_slice().iter().zip(b.as_slice()).enumerate() {
+            if (p - q).abs() > best.0 {
+                best = ((p - q).abs(), i % a.width(), i / a.width());
+            }
+        }
+        best
     }
 }

@@ -3,7 +3,7 @@
 
 use crate::error::Error;
 use crate::ops::params::OpSpec;
-use crate::ops::{colour, edge, filter, geometry, tone};
+use crate::ops::{colour, edge, filter, geometry, threshold, tone};
 
 /// Every operator, in the order `pumice ops` lists them (by family).
 pub static OPERATORS: &[&OpSpec] = &[
@@ -20,7 +20,13 @@ pub static OPERATORS: &[&OpSpec] = &[
     &geometry::TRANSPOSE,
     &tone::INVERT,
     &tone::GAMMA,
+    &tone::WINDOW,
+    &tone::EXPOSURE,
+    &tone::STRETCH,
+    &tone::EQUALIZE,
+    &tone::CLAHE,
     &colour::GRAY,
+    &threshold::BINARIZE,
 ];
 
 /// The operator called `name`, or an error suggesting the nearest name.

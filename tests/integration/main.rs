@@ -10,3 +10,4 @@ mod colour;
 mod filters;
 mod orientation;
 mod reference;
+mod tone;

@@ -1,0 +1,52 @@
+//! Throughput of the tone and threshold operators beside reference libraries
+//! (benches/reference_tone.py: OpenCV with 2 threads, scikit-image, numpy) on
+//! the same 4000×3000 data, as ratios. `cargo bench --bench tone [-- NAME]`.
+
+#[path = "common.rs"]
+mod common;
+
+use common::{H, REPEATS, W, median_with, print_table};
+use pumice::pipeline::Step;
+use pumice::raster::{Encoding, Layout, Plane, Raster};
+
+/// The BT.709 luma of the test image as exact 8-bit codes (an 8-bit gray source).
+fn luma_codes(image: &Raster) -> (Raster, Vec<u8>) {
+    let p = image.planes();
+    let codes: Vec<u8> = (0..W * H)
+        .map(|i| {
+            let y = 0.2126 * p[0].as_slice()[i] + 0.7152 * p[1].as_slice()[i] + 0.0722 * p[2].as_slice()[i];
+            (y * 255.0).round().clamp(0.0, 255.0) as u8
+        })
+        .collect();
+    let plane = Plane::from_vec(W, H, codes.iter().map(|&c| f32::from(c) / 255.0).collect()).unwrap();
+    let mut r = Raster::new(vec![plane], Layout::Gray, Encoding::Srgb).unwrap();
+    r.levels = Some(255);
+    (r, codes)
+}
+
+fn main() {
+    let only = common::Only::from_args();
+    let mpix = (W * H) as f64 / 1e6;
+    println!("Pumice tone operators, {W}×{H}, {} threads, median of {REPEATS}", rayon::current_num_threads());
+    let image = common::test_image();
+    let (gray, codes) = luma_codes(&image);
+    let gray_path = common::data_dir().join("luma-4000x3000.u8");
+    std::fs::write(&gray_path, &codes).unwrap();
+    let workloads: [(&str, &str, &Raster); 4] = [
+        ("equalize", "equalize", &gray),
+        ("stretch", "stretch", &gray),
+        ("binarize-otsu", "binarize:otsu", &gray),
+        ("binarize-sauvola-25", "binarize:sauvola,window=25", &gray),
+    ];
+    let mut ours = Vec::new();
+    for (name, step, input) in workloads {
+        if !only.wants(name) {
+            continue;
+        }
+        let op = Step::parse(step).unwrap().op;
+        let t = median_with(|| input.clone(), |r| drop(op.apply(r).unwrap()));
+        ours.push((name, t));
+    }
+    let reference = common::reference_times("reference_tone.py", &[&gray_path]);
+    print_table(mpix, &ours, &reference, &["cv2", "skimage", "numpy"]);
+}

@@ -1,0 +1,256 @@
+#!/usr/bin/env python3
+"""Reference fixtures for Pumice's tone and threshold operators (stretch,
+binarize, equalize), computed with scikit-image and numpy (versions pinned in
+requirements.txt and recorded in the manifest).
+
+Reference functions and how their parameters map to Pumice's:
+
+* stretch:low=L,high=H  <->  lo, hi = numpy.percentile(x, [L, H]) (default
+  'linear' method), then skimage.exposure.rescale_intensity(x, in_range=(lo, hi),
+  out_range=(0, 1)), which clips outside [lo, hi].
+* binarize:otsu         <->  t = skimage.filters.threshold_otsu(codes) on the
+  uint8 image (one bin per code, so t is a code); result codes > t. The Rust
+  test requires the same t (to the bin) and the same 0/1 image.
+  On float data: threshold_otsu(x, nbins=256) <-> binarize:otsu,bins=256.
+* equalize             <->  skimage.exposure.equalize_hist(codes) on the uint8
+  image (one bin per code, out = cdf(code)); on float data
+  equalize_hist(x, nbins=65536), Pumice's float binning.
+* binarize:sauvola,window=W,k=K,r=R  <->  T = skimage.filters.threshold_sauvola(
+  x, window_size=W, k=K, r=R) on x = codes/255 in float64; result x > T.
+  scikit-image pads with numpy's 'reflect' mode (edge sample not repeated),
+  which is Pumice's `mirror` border. The threshold surface T is stored too, so
+  the Rust test can allow a different 0/1 only where |x − T| is within
+  rounding of a tie.
+
+Inputs are crops of scikit-image's bundled sample images (skimage.data:
+camera, coins, moon, page) and seeded numpy.random.default_rng data. Integer
+images are stored as their codes in float32 (exact); Pumice divides by 255
+itself, as its decoder does. Every file is a .npy array (format 1.0, '<f4',
+C order, 2-D). manifest.toml lists the cases.
+
+    python tests/reference/make_tone.py           # write tests/reference/fixtures/tone/
+    python tests/reference/make_tone.py --check   # regenerate in a temporary folder
+                                                  # and compare; exit 1 on mismatch
+"""
+
+import argparse
+import json
+import pathlib
+import sys
+import tempfile
+import tomllib
+
+import numpy as np
+import skimage
+from skimage import data, exposure, filters
+
+HERE = pathlib.Path(__file__).resolve().parent
+FIXTURES = HERE / "fixtures" / "tone"
+
+# --check tolerance between library versions: results are float32 images in
+# [0, 1] or thresholds in code units; common practice, no published source.
+CHECK_ATOL = 1e-6
+
+
+def crops():
+    """(name, uint8 array) inputs: crops that keep each image's character."""
+    return [
+        ("camera", data.camera()[150:246, 180:276]),  # the cameraman's coat and the sky
+        ("coins", data.coins()[100:196, 100:196]),
+        ("moon", data.moon()[200:296, 200:296]),  # low contrast
+        ("page", data.page()[0:96, 0:128]),  # uneven light on text
+    ]
+
+
+def save(folder, name, a):
+    a = np.ascontiguousarray(a, dtype="<f4")
+    assert a.ndim == 2
+    np.save(folder / name, a, allow_pickle=False)
+
+
+def generate(folder):
+    folder.mkdir(parents=True, exist_ok=True)
+    cases = []
+    for name, img in crops():
+        save(folder, f"{name}.npy", img.astype(np.float32))
+        x = img.astype(np.float64) / 255.0
+        # Otsu on the uint8 codes.
+        t = float(filters.threshold_otsu(img))
+        save(folder, f"{name}-otsu.npy", (img > t).astype(np.float32))
+        cases.append(
+            {
+                "id": f"{name}-otsu",
+                "reference": "skimage.filters.threshold_otsu(uint8 image)",
+                "step": "binarize:otsu",
+                "input": f"{name}.npy",
+                "scale": 255.0,
+                "output": f"{name}-otsu.npy",
+                "threshold": t,
+            }
+        )
+        # Percentile stretch.
+        for low, high in [(0.5, 99.5)] + ([(2.0, 98.0)] if name == "moon" else []):
+            lo, hi = np.percentile(x, [low, high])
+            out = exposure.rescale_intensity(x, in_range=(lo, hi), out_range=(0.0, 1.0))
+            cid = f"{name}-stretch-{low}-{high}"
+            save(folder, f"{cid}.npy", out.astype(np.float32))
+            cases.append(
+                {
+                    "id": cid,
+                    "reference": "numpy.percentile + skimage.exposure.rescale_intensity",
+                    "step": f"stretch:low={low},high={high}",
+                    "input": f"{name}.npy",
+                    "scale": 255.0,
+                    "output": f"{cid}.npy",
+                    "low_value": float(lo),
+                    "high_value": float(hi),
+                }
+            )
+    # Global equalisation of the uint8 crops: cdf per code.
+    for name, img in crops():
+        if name not in ("camera", "moon"):
+            continue
+        out = exposure.equalize_hist(img)
+        cid = f"{name}-equalize"
+        save(folder, f"{cid}.npy", out.astype(np.float32))
+        cases.append(
+            {
+                "id": cid,
+                "reference": "skimage.exposure.equalize_hist(uint8 image)",
+                "step": "equalize",
+                "input": f"{name}.npy",
+                "scale": 255.0,
+                "output": f"{cid}.npy",
+            }
+        )
+    # Sauvola on the page and the coins.
+    for name, img in crops():
+        if name not in ("page", "coins"):
+            continue
+        x = img.astype(np.float64) / 255.0
+        for window, k, r in [(25, 0.2, 0.5)] + ([(15, 0.34, 0.5)] if name == "page" else []):
+            T = filters.threshold_sauvola(x, window_size=window, k=k, r=r)
+            cid = f"{name}-sauvola-w{window}-k{k}"
+            save(folder, f"{cid}.npy", (x > T).astype(np.float32))
+            save(folder, f"{cid}-T.npy", T.astype(np.float32))
+            cases.append(
+                {
+                    "id": cid,
+                    "reference": f"skimage.filters.threshold_sauvola(x, window_size={window}, k={k}, r={r})",
+                    "step": f"binarize:sauvola,window={window},k={k},r={r}",
+                    "input": f"{name}.npy",
+                    "scale": 255.0,
+                    "output": f"{cid}.npy",
+                    "thresholds": f"{cid}-T.npy",
+                }
+            )
+    # Otsu on seeded float data (two overlapping normal populations).
+    rng = np.random.default_rng(20260101)
+    f = np.concatenate([rng.normal(0.3, 0.08, 2000), rng.normal(0.7, 0.1, 2096)]).astype(np.float32)
+    f = rng.permutation(f).reshape(64, 64)
+    save(folder, "float-bimodal.npy", f)
+    t = float(filters.threshold_otsu(f.astype(np.float64), nbins=256))
+    save(folder, "float-bimodal-otsu.npy", (f > t).astype(np.float32))
+    cases.append(
+        {
+            "id": "float-bimodal-otsu",
+            "reference": "skimage.filters.threshold_otsu(float64 image, nbins=256)",
+            "step": "binarize:otsu,bins=256",
+            "input": "float-bimodal.npy",
+            "scale": 1.0,
+            "output": "float-bimodal-otsu.npy",
+            "threshold": t,
+            "bin_width": float((f.max() - f.min()) / 256.0),
+        }
+    )
+    # Equalisation of float data: 65536 bins, as Pumice bins float data.
+    g = (rng.gamma(2.0, 0.1, 4096)).astype(np.float32).reshape(64, 64)
+    save(folder, "float-gamma.npy", g)
+    out = exposure.equalize_hist(g.astype(np.float64), nbins=65536)
+    save(folder, "float-gamma-equalize.npy", out.astype(np.float32))
+    cases.append(
+        {
+            "id": "float-gamma-equalize",
+            "reference": "skimage.exposure.equalize_hist(float64 image, nbins=65536)",
+            "step": "equalize",
+            "input": "float-gamma.npy",
+            "scale": 1.0,
+            "output": "float-gamma-equalize.npy",
+        }
+    )
+    manifest = {
+        "numpy_version": np.__version__,
+        "skimage_version": skimage.__version__,
+        "case": cases,
+    }
+    (folder / "manifest.toml").write_text(to_toml(manifest))
+    return manifest
+
+
+def toml_value(v):
+    if isinstance(v, str):
+        return json.dumps(v)
+    if isinstance(v, float):
+        return repr(v)
+    return str(v)
+
+
+def to_toml(manifest):
+    lines = ["# Generated by tests/reference/make_tone.py; do not edit."]
+    for key, value in manifest.items():
+        if key != "case":
+            lines.append(f"{key} = {toml_value(value)}")
+    for case in manifest["case"]:
+        lines.append("")
+        lines.append("[[case]]")
+        for key, value in case.items():
+            lines.append(f"{key} = {toml_value(value)}")
+    return "\n".join(lines) + "\n"
+
+
+def check():
+    problems = []
+    with tempfile.TemporaryDirectory() as tmp:
+        fresh = generate(pathlib.Path(tmp))
+        committed = tomllib.loads((FIXTURES / "manifest.toml").read_text())
+        for key in ("numpy_version", "skimage_version"):
+            if committed.get(key) != fresh[key]:
+                print(f"note: fixtures made with {key} {committed.get(key)}, checking with {fresh[key]}")
+        if len(committed["case"]) != len(fresh["case"]):
+            problems.append("the number of cases differs")
+        for a, b in zip(committed["case"], fresh["case"]):
+            for key in b:
+                va, vb = a.get(key), b[key]
+                if isinstance(vb, float):
+                    if va is None or abs(va - vb) > CHECK_ATOL:
+                        problems.append(f"{b['id']}: {key} {va} != {vb}")
+                elif va != vb:
+                    problems.append(f"{b['id']}: {key} {va!r} != {vb!r}")
+        for path in sorted(pathlib.Path(tmp).glob("*.npy")):
+            old = FIXTURES / path.name
+            if not old.exists():
+                problems.append(f"{path.name}: not committed")
+                continue
+            a, b = np.load(old), np.load(path)
+            if a.shape != b.shape or not np.allclose(a, b, rtol=0, atol=CHECK_ATOL):
+                problems.append(f"{path.name}: differs")
+    for p in problems:
+        print(p, file=sys.stderr)
+    print(f"{len(fresh['case'])} tone cases checked: {'FAILED' if problems else 'ok'}")
+    return 1 if problems else 0
+
+
+def main():
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--check", action="store_true", help="compare with the committed fixtures")
+    args = ap.parse_args()
+    if args.check:
+        return check()
+    manifest = generate(FIXTURES)
+    size = sum(p.stat().st_size for p in FIXTURES.iterdir())
+    print(f"wrote {len(manifest['case'])} cases to {FIXTURES} ({size / 1024:.0f} KiB)")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

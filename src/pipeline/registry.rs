@@ -11,6 +11,7 @@ pub static OPERATORS: &[&OpSpec] = &[
     &filter::CONVOLVE,
     &filter::BOX,
     &filter::SHARPEN,
+    &filter::MEDIAN,
     &edge::SOBEL,
     &edge::SCHARR,
     &edge::LAPLACE,

@@ -1,4 +1,4 @@
-//! Cross-checks of `box`, `sobel`, `scharr`, `laplace` and `sharpen` against
+//! Cross-checks of `box`, `median`, `sobel`, `scharr`, `laplace` and `sharpen` against
 //! committed fixtures (tests/reference/make_filters.py, listed in
 //! fixtures/filters/manifest.toml): scipy.ndimage, OpenCV's Python bindings and
 //! scikit-image, each case naming its reference function. Every case runs the
@@ -23,6 +23,8 @@
 //!   both planes' errors and the square root's rounding (14 "taps");
 //! * laplace: the 3×3 stencil by direct 2-D correlation, 9 taps; the LoG as two
 //!   separable runs summed, Σ|K| = 2·Σ|g|·Σ|g''|, taps 2·(2r+1) + 1;
+//! * median: the output is one of the input samples (or the fill), so the
+//!   tolerance is 0 (Σ|K| recorded as 0): bit-exact agreement;
 //! * sharpen: the blur's bound scaled by (1 + amount) plus the difference and
 //!   sum (2 more roundings); compared after clamping Pumice to [0, 1], because
 //!   skimage.filters.unsharp_mask clips its output to [0, 1].
@@ -62,6 +64,8 @@ struct Case {
     output: String,
     shape: [usize; 2],
     clip: bool,
+    /// 255 when the input holds exact 8-bit codes (`Raster::levels`), else 0.
+    levels: u32,
     sum_abs: f64,
     taps: usize,
     passes: usize,
@@ -82,7 +86,8 @@ fn run(case: &Case) -> (Plane, Plane, f32) {
     // the fill values in the fixtures are 0 or 0.25, never above max_in's range [0, 1)
     let big_m = max_in.max(0.25);
     let tol = (f64::from(f32::EPSILON) * case.sum_abs * big_m * (case.taps + case.passes + 1) as f64) as f32;
-    let raster = Raster::new(vec![input], Layout::Gray, Encoding::Linear).unwrap();
+    let mut raster = Raster::new(vec![input], Layout::Gray, Encoding::Linear).unwrap();
+    raster.levels = (case.levels > 0).then_some(case.levels);
     let out = step.op.apply(raster).unwrap_or_else(|e| panic!("{}: {e}", case.id));
     let mut got = out.into_planes().remove(0);
     if case.clip {
@@ -151,4 +156,11 @@ fn laplace_matches_scipy_laplace_correlate_and_gaussian_laplace() {
 fn sharpen_matches_skimage_unsharp_mask() {
     // skimage.filters.unsharp_mask (mode reflect, clipped to [0, 1]).
     check_all("sharpen", &["reflect"]);
+}
+
+#[test]
+fn median_matches_scipy_median_filter_and_opencv_median_blur() {
+    // scipy.ndimage.median_filter (square r = 1, 2, 4; disk r = 1, 3; every mode)
+    // and cv2.medianBlur (ksize 3, 5, 7 on 8-bit codes, border replicate): exact.
+    check_all("median", &ALL);
 }

@@ -9,6 +9,9 @@ Reference functions (versions pinned in requirements.txt, recorded in the manife
            (OpenCV has no wrap border for filters, so scharr is checked with four rules)
 * laplace  scipy.ndimage.laplace (4 neighbours), scipy.ndimage.correlate with the
            8-neighbour stencil, scipy.ndimage.gaussian_laplace (sigma, truncate 4)
+* median   scipy.ndimage.median_filter(x, size=2r+1 | footprint=disk, mode, cval) and
+           cv2.medianBlur(u8, ksize) on the camera crop (OpenCV replicates the border;
+           the Rust side marks that input as 8-bit, so radius 3 takes the histogram path)
 * sharpen  skimage.filters.unsharp_mask(x, radius=sigma, amount) (mode reflect, output
            clipped to [0, 1]: the Rust side clamps Pumice's output before comparing)
 
@@ -165,6 +168,34 @@ def make_cases(inputs):
                     }
                     taps = 6 if out_name != "magnitude" else 14
                     yield linear(c, 32.0, taps, 2), name, out
+        for mode, border, _ in MODES:
+            cval = CVAL if mode == "constant" else 0.0
+            for r, shape in ((1, "square"), (2, "square"), (4, "square"), (1, "disk"), (3, "disk")):
+                i, j = np.mgrid[-r : r + 1, -r : r + 1]
+                foot = np.ones_like(i, dtype=bool) if shape == "square" else (i * i + j * j <= r * r)
+                out = ndi.median_filter(x, footprint=foot, mode=mode, cval=cval)
+                c = {
+                    "id": f"median-r{r}-{shape}-{border}-{name}",
+                    "operator": "median",
+                    "reference": "scipy.ndimage.median_filter",
+                    "call": f"median_filter(x, footprint={shape} r={r}, mode={mode!r}, cval={cval!r})",
+                    "step": f"median:radius={r},shape={shape},border={border},fill={cval}",
+                }
+                # the median is one of the samples: exact, tolerance 0
+                yield linear(c, 0.0, 0, 0), name, out
+        if name == "camera":
+            codes = np.round(x * 255).astype(np.uint8)
+            for ksize in (3, 5, 7):
+                out = cv2.medianBlur(codes, ksize).astype(np.float64) / 255
+                c = {
+                    "id": f"median-cv{ksize}-replicate-{name}",
+                    "operator": "median",
+                    "reference": "cv2.medianBlur",
+                    "call": f"medianBlur(u8, {ksize})",
+                    "step": f"median:radius={ksize // 2},border=replicate",
+                    "levels": 255,
+                }
+                yield linear(c, 0.0, 0, 0), name, out
         for amount, sigma in ((1.0, 1.0), (2.5, 2.0)):
             out = skimage.filters.unsharp_mask(x, radius=sigma, amount=amount)
             r = int(4.0 * sigma + 0.5)
@@ -206,6 +237,7 @@ def generate(folder):
     cases = []
     for case, name, out in make_cases(inputs):
         case.setdefault("clip", False)
+        case.setdefault("levels", 0)
         case["input"] = f"input-{name}.npy"
         case["output"] = f"{case['id']}.npy"
         case["shape"] = list(inputs[name].shape)

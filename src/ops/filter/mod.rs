@@ -1,14 +1,16 @@
-//! Neighbourhood filters: `gauss`, `convolve`, `box` and `sharpen`. They
-//! mix light, so they run in linear light, with alpha premultiplied while they
-//! work.
+//! Neighbourhood filters: `gauss`, `convolve`, `box` and `sharpen` (they mix
+//! light, so they run in linear light, with alpha premultiplied while they
+//! work) and `median` (a rank filter, right in any domain).
 
 mod boxmean;
 mod engine;
+mod median;
 mod rows;
 mod sharpen;
 
 pub use boxmean::{BOX, BoxMean, MAX_BOX_RADIUS, box_mean};
 pub use engine::{correlate_2d, correlate_separable};
+pub use median::{MAX_MEDIAN_RADIUS, MEDIAN, Median, Shape};
 pub use sharpen::{SHARPEN, Sharpen};
 
 use crate::error::{Error, ParamError};

@@ -1,0 +1,95 @@
+#!/usr/bin/env python3
+"""Times reference libraries on the workloads of `cargo bench --bench filters`.
+
+Called by the benchmark with the .npy files it wrote (rgb.npy: 3 x H x W float32
+linear planes; rgb8.npy: H x W x 3 uint8; gray.npy: H x W float32; gray16.npy:
+H x W uint16), so both sides measure the same data in the same run. Prints one
+JSON object: "lib.workload" -> median seconds for the whole image.
+
+  box-5              cv2.blur(plane, (11, 11), BORDER_REFLECT) per float32 plane;
+                     scipy.ndimage.uniform_filter(size=11, mode='reflect') per plane.
+  median-5x5         cv2.medianBlur(rgb8, 5) on the interleaved 8-bit image;
+                     scipy.ndimage.median_filter(size=5) per plane, timed on a
+                     1000 x 750 crop and scaled by the area (x16) - the whole image
+                     takes tens of seconds.
+  median-r15-16bit   scipy.ndimage.median_filter(gray16, size=31, mode='reflect') on
+                     a 500 x 375 crop, scaled by the area (x64). OpenCV's medianBlur
+                     takes 16-bit data only up to ksize 5, so it has no figure here.
+  sobel-magnitude    cv2.Sobel(gray, CV_32F, 1, 0) and (0, 1) (ksize 3,
+                     BORDER_REFLECT) + cv2.magnitude; scipy.ndimage.sobel on both
+                     axes + numpy.hypot.
+OpenCV runs with 2 threads (cv2.setNumThreads(2)); scipy is single-threaded.
+"""
+import argparse
+import json
+import statistics
+import sys
+import time
+
+import numpy as np
+
+
+def median_time(fn, repeats):
+    times = []
+    for _ in range(repeats):
+        t = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - t)
+    return statistics.median(times)
+
+
+def main():
+    ap = argparse.ArgumentParser()
+    ap.add_argument("folder")
+    ap.add_argument("--repeats", type=int, default=5)
+    args = ap.parse_args()
+    rgb = np.load(f"{args.folder}/rgb.npy")
+    rgb8 = np.load(f"{args.folder}/rgb8.npy")
+    gray = np.load(f"{args.folder}/gray.npy")
+    gray16 = np.load(f"{args.folder}/gray16.npy")
+    h, w = gray.shape
+    out = {}
+    try:
+        import cv2
+
+        cv2.setNumThreads(2)
+        out["cv2.box-5"] = median_time(
+            lambda: [cv2.blur(p, (11, 11), borderType=cv2.BORDER_REFLECT) for p in rgb], args.repeats
+        )
+        out["cv2.median-5x5"] = median_time(lambda: cv2.medianBlur(rgb8, 5), args.repeats)
+
+        def cv_sobel():
+            gx = cv2.Sobel(gray, cv2.CV_32F, 1, 0, ksize=3, borderType=cv2.BORDER_REFLECT)
+            gy = cv2.Sobel(gray, cv2.CV_32F, 0, 1, ksize=3, borderType=cv2.BORDER_REFLECT)
+            return cv2.magnitude(gx, gy)
+
+        out["cv2.sobel-magnitude"] = median_time(cv_sobel, args.repeats)
+    except ImportError as e:
+        print(f"opencv not timed: {e}", file=sys.stderr)
+    try:
+        import scipy.ndimage as ndi
+
+        out["scipy.box-5"] = median_time(
+            lambda: [ndi.uniform_filter(p, size=11, mode="reflect") for p in rgb], 3
+        )
+        crop = rgb8[:750, :1000]
+        scale = (h * w) / crop[..., 0].size
+        out["scipy.median-5x5"] = scale * median_time(
+            lambda: [ndi.median_filter(crop[..., c], size=5, mode="reflect") for c in range(3)], 3
+        )
+        crop16 = gray16[:375, :500]
+        scale16 = (h * w) / crop16.size
+        out["scipy.median-r15-16bit"] = scale16 * median_time(
+            lambda: ndi.median_filter(crop16, size=31, mode="reflect"), 1
+        )
+        out["scipy.sobel-magnitude"] = median_time(
+            lambda: np.hypot(ndi.sobel(gray, axis=1, mode="reflect"), ndi.sobel(gray, axis=0, mode="reflect")),
+            3,
+        )
+    except ImportError as e:
+        print(f"scipy not timed: {e}", file=sys.stderr)
+    print(json.dumps(out))
+
+
+if __name__ == "__main__":
+    main()

@@ -166,7 +166,8 @@ pub fn run(args: RunArgs) -> Exit {
             }
         }
     }
-    let pipeline = Pipeline::new(steps);
+    let mut pipeline = Pipeline::new(steps);
+    pipeline.max_pixels = options.limits.max_pixels;
     let input = Location::parse(&args.input);
     let output = Location::parse(&args.output);
     let job = match Job::plan(input.clone(), output.clone(), &pipeline, &options, args.overwrite) {

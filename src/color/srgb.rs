@@ -75,16 +75,23 @@ pub fn decode_table(levels: u32) -> Option<&'static [f32]> {
 /// and a table exists for `n`, each sample is taken to be an exact code `k/n` and
 /// looked up (`k = round(c·n)`), which equals the formula to within its `f32` rounding.
 pub fn decode_in_place(samples: &mut [f32], levels: Option<u32>) {
-    match levels.and_then(|n| decode_table(n).map(|t| (n, t))) {
-        Some((n, table)) => {
-            let scale = n as f32;
-            for s in samples {
-                // Clamp first: a NaN or out-of-range code cannot index out of bounds.
-                let k = (*s * scale + 0.5).clamp(0.0, scale) as usize;
-                *s = table[k];
-            }
-        }
-        None => samples.iter_mut().for_each(|s| *s = decode(*s)),
+    match levels {
+        Some(255) => lookup::<256>(samples, decode_table_u8()),
+        Some(65535) => lookup::<65536>(samples, decode_table_u16()),
+        _ => samples.iter_mut().for_each(|s| *s = decode(*s)),
+    }
+}
+
+/// `s ← table[round(s · (N − 1))]`. The saturating cast maps NaN and negative
+/// values to code 0 and `min` caps the rest, so no index is out of bounds.
+fn lookup<const N: usize>(samples: &mut [f32], table: &[f32]) {
+    let Ok(table) = <&[f32; N]>::try_from(table) else {
+        samples.iter_mut().for_each(|s| *s = decode(*s));
+        return;
+    };
+    let scale = (N - 1) as f32;
+    for s in samples {
+        *s = table[((*s * scale + 0.5) as usize).min(N - 1)];
     }
 }
 

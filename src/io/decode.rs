@@ -28,7 +28,7 @@ pub struct Limits {
 impl Limits {
     /// 2²⁸ pixels (268 million; e.g. 16384 × 16384) — room for large scans and
     /// stitched micrographs — and 4 GiB of decoded samples.
-    pub const DEFAULT: Limits = Limits { max_pixels: 1 << 28, max_bytes: 4 << 30 };
+    pub const DEFAULT: Limits = Limits { max_pixels: crate::raster::DEFAULT_MAX_PIXELS, max_bytes: 4 << 30 };
 
     fn check(&self, format: Format, width: u64, height: u64, bytes: u64) -> Result<(), Error> {
         let pixels = width.saturating_mul(height);

@@ -54,6 +54,13 @@ pub trait Operator: Send + Sync {
         None
     }
 
+    /// The size of the output for an input of `width × height`, or an error
+    /// when the operator cannot run on that size. Checked by the pipeline
+    /// before any work, so an oversized result is refused before it is allocated.
+    fn output_size(&self, width: usize, height: usize) -> Result<(usize, usize), Error> {
+        Ok((width, height))
+    }
+
     /// Runs the operator.
     fn apply(&self, raster: Raster) -> Result<Raster, Error>;
 }

@@ -19,6 +19,14 @@ pub enum Kind {
     Choice(&'static [&'static str]),
     /// A matrix: numbers separated by spaces, rows by `;`.
     Matrix,
+    /// A positive factor written as a number (`0.5`) or a percentage (`50%`),
+    /// at most `max`; held as the factor.
+    Ratio { max: f64 },
+    /// An aspect ratio written `W:H` (`16:9`) or as a number (`1.5`); held as
+    /// W/H, with `none` held as 0.
+    Aspect,
+    /// A colour (`white`, `black`, `gray`, `#rrggbb`) or `transparent`.
+    Colour,
 }
 
 impl Kind {
@@ -48,6 +56,11 @@ impl Kind {
             Kind::Bool => "true or false".into(),
             Kind::Choice(c) => format!("one of {}", c.join(" | ")),
             Kind::Matrix => "a matrix (numbers separated by spaces, rows by `;`)".into(),
+            Kind::Ratio { max } => {
+                format!("a factor above 0 and at most {max}, as a number or a percentage (0.5 or 50%)")
+            }
+            Kind::Aspect => "an aspect ratio above 0, as W:H or a number (16:9 or 1.5), or none".into(),
+            Kind::Colour => "a colour: white, black, gray, #rrggbb or transparent".into(),
         }
     }
 }
@@ -122,6 +135,8 @@ pub enum Value {
     Bool(bool),
     Choice(&'static str),
     Matrix(Matrix),
+    /// An sRGB-encoded colour, or `None` for transparent.
+    Colour(Option<[f32; 3]>),
 }
 
 impl fmt::Display for Value {
@@ -131,6 +146,11 @@ impl fmt::Display for Value {
             Value::Bool(v) => write!(f, "{v}"),
             Value::Choice(v) => f.write_str(v),
             Value::Matrix(m) => write!(f, "{m}"),
+            Value::Colour(None) => f.write_str("transparent"),
+            Value::Colour(Some(c)) => {
+                let [r, g, b] = c.map(|v| (v * 255.0).round() as u8);
+                write!(f, "#{r:02x}{g:02x}{b:02x}")
+            }
         }
     }
 }
@@ -225,6 +245,14 @@ impl Args {
         }
     }
 
+    /// A colour parameter: `Some` sRGB-encoded colour, or `None` for transparent.
+    pub fn colour(&self, name: &str) -> Result<Option<[f32; 3]>, ParamError> {
+        match self.get(name)? {
+            Value::Colour(c) => Ok(*c),
+            other => Err(ParamError::new(format!("internal: `{name}` is {other}, not a colour"))),
+        }
+    }
+
     pub fn matrix(&self, name: &str) -> Result<&Matrix, ParamError> {
         match self.get(name)? {
             Value::Matrix(m) => Ok(m),
@@ -278,6 +306,41 @@ fn parse_value(p: &ParamSpec, text: &str) -> Result<Value, ParamError> {
                 }
             }
         }
+        Kind::Ratio { max } => {
+            let t = text.trim();
+            let v: f64 = match t.strip_suffix('%') {
+                Some(p) => p.trim().parse::<f64>().map_err(|_| bad())? / 100.0,
+                None => t.parse().map_err(|_| bad())?,
+            };
+            if !(v.is_finite() && v > 0.0 && v <= max) {
+                return Err(bad());
+            }
+            Ok(Value::Number(v))
+        }
+        Kind::Aspect => {
+            let t = text.trim();
+            if t == "none" {
+                return Ok(Value::Number(0.0));
+            }
+            let v = match t.split_once(':') {
+                Some((w, h)) => {
+                    let w: f64 = w.trim().parse().map_err(|_| bad())?;
+                    let h: f64 = h.trim().parse().map_err(|_| bad())?;
+                    w / h
+                }
+                None => t.parse().map_err(|_| bad())?,
+            };
+            if !(v.is_finite() && v > 0.0) {
+                return Err(bad());
+            }
+            Ok(Value::Number(v))
+        }
+        Kind::Colour => match text.trim() {
+            "transparent" => Ok(Value::Colour(None)),
+            t => crate::color::parse_colour(t)
+                .map(|c| Value::Colour(Some(c)))
+                .map_err(|why| ParamError::new(format!("parameter `{}`: {why} or transparent", p.name))),
+        },
         Kind::Matrix => parse_matrix(text)
             .map(Value::Matrix)
             .map_err(|why| ParamError::new(format!("parameter `{}`: {why}", p.name))),

@@ -96,6 +96,20 @@ impl Pipeline {
                 raster.levels = None;
                 continue;
             }
+            let (w, h) = step
+                .op
+                .output_size(raster.width(), raster.height())
+                .map_err(|error| StepFailure { index, error })?;
+            if (w as u64).saturating_mul(h as u64) > self.max_pixels {
+                return Err(StepFailure {
+                    index,
+                    error: Error::Limit(format!(
+                        "the result would be {w}×{h} = {} pixels, over the limit of {} pixels",
+                        w as u64 * h as u64,
+                        self.max_pixels
+                    )),
+                });
+            }
             raster = flush(raster, &mut pending);
             let keeps_levels = step.op.moves_samples_only();
             let levels = raster.levels;

@@ -57,14 +57,22 @@ impl fmt::Debug for Step {
 }
 
 /// An ordered list of steps.
-#[derive(Debug, Default)]
+#[derive(Debug)]
 pub struct Pipeline {
     pub steps: Vec<Step>,
+    /// The largest `width × height` any step may produce.
+    pub max_pixels: u64,
+}
+
+impl Default for Pipeline {
+    fn default() -> Self {
+        Pipeline::new(Vec::new())
+    }
 }
 
 impl Pipeline {
     pub fn new(steps: Vec<Step>) -> Pipeline {
-        Pipeline { steps }
+        Pipeline { steps, max_pixels: crate::raster::DEFAULT_MAX_PIXELS }
     }
 
     /// Parses each text as a step.

@@ -8,6 +8,10 @@ pub use plane::Plane;
 
 use crate::error::Error;
 
+/// The default largest `width × height` Pumice will decode or create: 2²⁸
+/// (268 million pixels, e.g. 16384 × 16384).
+pub const DEFAULT_MAX_PIXELS: u64 = 1 << 28;
+
 /// Which channels a raster holds, in storage order.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum Layout {

@@ -10,4 +10,5 @@ mod colour;
 mod filters;
 mod orientation;
 mod reference;
+mod resample;
 mod tone;

@@ -5,7 +5,7 @@
 mod boxmean;
 mod engine;
 mod median;
-mod rows;
+pub(crate) mod rows;
 mod sharpen;
 
 pub use boxmean::{BOX, BoxMean, MAX_BOX_RADIUS, box_mean};

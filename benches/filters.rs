@@ -6,7 +6,8 @@
 //! The reference side needs the packages of `benches/requirements.txt`; set
 //! `PUMICE_BENCH_PYTHON` to the interpreter. Nothing here asserts a time.
 //!
-//! Workloads: box r=5 on RGB f32 (linear); median 5×5 on the 8-bit RGB image;
+//! Workloads: gauss σ = 2, 8, 32 (method=auto) and exact beside fast at
+//! σ = 4, 6, 8 (the measurement behind `FAST_SIGMA`), box r=5 on RGB f32 (linear); median 5×5 on the 8-bit RGB image;
 //! median r=15 (31×31) on a 16-bit gray image; Sobel magnitude on gray f32.
 
 #[path = "common.rs"]
@@ -57,7 +58,17 @@ fn main() {
     let mut gray16 = Raster::new(vec![g16.clone()], Layout::Gray, Encoding::Linear).unwrap();
     gray16.levels = Some(65535);
 
-    let workloads: [(&str, &str, &Raster); 4] = [
+    let workloads: [(&str, &str, &Raster); 13] = [
+        ("gauss-2", "gauss:2", &linear),
+        ("gauss-8", "gauss:8", &linear),
+        ("gauss-32", "gauss:32", &linear),
+        // where method=auto switches: exact and fast side by side
+        ("gauss-exact-4", "gauss:4,method=exact", &linear),
+        ("gauss-fast-4", "gauss:4,method=fast", &linear),
+        ("gauss-exact-6", "gauss:6,method=exact", &linear),
+        ("gauss-fast-6", "gauss:6,method=fast", &linear),
+        ("gauss-exact-8", "gauss:8,method=exact", &linear),
+        ("gauss-fast-8", "gauss:8,method=fast", &linear),
         ("box-5", "box:5", &linear),
         ("median-5x5", "median:2", &image),
         ("median-r15-16bit", "median:15", &gray16),

@@ -6,6 +6,9 @@ linear planes; rgb8.npy: H x W x 3 uint8; gray.npy: H x W float32; gray16.npy:
 H x W uint16), so both sides measure the same data in the same run. Prints one
 JSON object: "lib.workload" -> median seconds for the whole image.
 
+  gauss-2, -8, -32   cv2.GaussianBlur(plane, (2r+1, 2r+1), sigma, BORDER_REFLECT) per
+                     float32 plane, r = floor(4 sigma + 0.5); scipy.ndimage.gaussian_filter
+                     (truncate 4, mode 'reflect') for sigma 2 and 8.
   box-5              cv2.blur(plane, (11, 11), BORDER_REFLECT) per float32 plane;
                      scipy.ndimage.uniform_filter(size=11, mode='reflect') per plane.
   median-5x5         cv2.medianBlur(rgb8, 5) on the interleaved 8-bit image;
@@ -53,6 +56,12 @@ def main():
         import cv2
 
         cv2.setNumThreads(2)
+        for sigma in (2, 8, 32):
+            k = 2 * int(4 * sigma + 0.5) + 1
+            out[f"cv2.gauss-{sigma}"] = median_time(
+                lambda: [cv2.GaussianBlur(p, (k, k), sigma, borderType=cv2.BORDER_REFLECT) for p in rgb],
+                args.repeats,
+            )
         out["cv2.box-5"] = median_time(
             lambda: [cv2.blur(p, (11, 11), borderType=cv2.BORDER_REFLECT) for p in rgb], args.repeats
         )
@@ -69,6 +78,10 @@ def main():
     try:
         import scipy.ndimage as ndi
 
+        for sigma in (2, 8):
+            out[f"scipy.gauss-{sigma}"] = median_time(
+                lambda: [ndi.gaussian_filter(p, sigma, mode="reflect", truncate=4.0) for p in rgb], 3
+            )
         out["scipy.box-5"] = median_time(
             lambda: [ndi.uniform_filter(p, size=11, mode="reflect") for p in rgb], 3
         )

@@ -4,12 +4,14 @@
 
 mod boxmean;
 mod engine;
+mod fastgauss;
 mod median;
 pub(crate) mod rows;
 mod sharpen;
 
 pub use boxmean::{BOX, BoxMean, MAX_BOX_RADIUS, box_mean};
 pub use engine::{correlate_2d, correlate_separable};
+pub use fastgauss::{ExtendedBox, MAX_KERNEL_L1, cascade_gauss};
 pub use median::{MAX_MEDIAN_RADIUS, MEDIAN, Median, Shape};
 pub use sharpen::{SHARPEN, Sharpen};
 
@@ -22,17 +24,29 @@ use crate::tile::Border;
 /// The text of `pumice ops gauss`, also the doc of [`Gauss`].
 macro_rules! gauss_doc {
     () => {
-        "Gaussian blur with an exact, separable kernel.
+        "Gaussian blur: an exact separable kernel, or a constant-time cascade for large sigma.
 
 ```text
+method=exact:
 g(i) = exp(-i² / 2σ²) / Σⱼ exp(-j² / 2σ²),   i = -r … r,   r = floor(truncate·σ + 1/2)
 out  = in ⊛ (g ⊗ g)    (vertical pass, then horizontal)
+method=fast: five extended boxes along each axis, by running sums (f64):
+b(i) = 1/c for |i| ≤ m,  α/c for |i| = m + 1,  c = 2m + 1 + 2α
+m, α chosen so that the five-fold cascade has variance exactly σ²
+method=auto: exact below sigma 10, fast from 10 up (FAST_SIGMA)
 ```
+
+Accuracy of fast: the 2-D cascade kernel is within an L1 distance of 0.044 of
+the exact kernel (truncate 4) for every σ ≥ 2 (measured over σ = 2 … 64 in a
+unit test), so for samples in [0, M] the two methods differ by at most
+0.022·M, and far less on smooth images. Its cost per pixel does not grow with
+sigma; truncate does not apply to it (its support is 5·(m+1) a side).
 
 Domain: linear light; alpha is premultiplied while filtering.
 Border: any rule (default reflect); needs r rows of halo.
 Source: the sampled, renormalised Gaussian; the same kernel and truncation rule as
-scipy.ndimage.gaussian_filter (common practice)."
+scipy.ndimage.gaussian_filter (common practice). Fast: extended box filtering,
+Gwosdek, Grewenig, Bruhn & Weickert, SSVM 2011 (LNCS 6667, pp. 447–458)."
     };
 }
 
@@ -41,15 +55,53 @@ scipy.ndimage.gaussian_filter (common practice)."
 pub struct Gauss {
     kernel: Vec<f32>,
     border: Border,
+    /// The cascade, when it replaces the exact kernel.
+    fast: Option<ExtendedBox>,
 }
+
+/// How `gauss` computes the blur.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum GaussMethod {
+    Exact,
+    Fast,
+    /// Exact below [`FAST_SIGMA`], fast from it up.
+    Auto,
+}
+
+/// The sigma from which `method=auto` takes the cascade. Measured with
+/// `cargo bench --bench filters` (4000×3000 RGB f32, 2 threads, one run on a
+/// shared machine): exact 33.1 / 24.3 / 15.4 Mpx/s at σ = 4 / 6 / 8, fast
+/// 13.0 / 11.4 / 11.0 (flat, as it should be). The exact kernel's cost grows
+/// linearly with σ, so extrapolating those three points puts the crossing near
+/// σ = 10; the cascade is taken from there.
+pub const FAST_SIGMA: f64 = 10.0;
 
 impl Gauss {
     pub fn new(sigma: f64, truncate: f64, border: Border) -> Result<Gauss, ParamError> {
         if !(sigma > 0.0 && sigma.is_finite()) {
             return Err(ParamError::new(format!("sigma must be positive, got {sigma}")));
         }
+        Gauss::with_method(sigma, truncate, GaussMethod::Exact, border)
+    }
+
+    /// A Gaussian computed by `method`.
+    pub fn with_method(
+        sigma: f64,
+        truncate: f64,
+        method: GaussMethod,
+        border: Border,
+    ) -> Result<Gauss, ParamError> {
+        if !(sigma > 0.0 && sigma.is_finite()) {
+            return Err(ParamError::new(format!("sigma must be positive, got {sigma}")));
+        }
+        let fast = match method {
+            GaussMethod::Exact => false,
+            GaussMethod::Fast => true,
+            GaussMethod::Auto => sigma >= FAST_SIGMA,
+        };
         let radius = (truncate * sigma + 0.5).floor() as usize;
-        Ok(Gauss { kernel: gaussian_kernel(sigma, radius), border })
+        let kernel = if fast { Vec::new() } else { gaussian_kernel(sigma, radius) };
+        Ok(Gauss { kernel, border, fast: fast.then(|| ExtendedBox::for_sigma(sigma, fastgauss::PASSES)) })
     }
 
     /// The normalised 1-D kernel, `2r + 1` taps.
@@ -73,14 +125,25 @@ impl Operator for Gauss {
     }
 
     fn apply(&self, raster: Raster) -> Result<Raster, Error> {
-        filter_planes(raster, |p| Ok(correlate_separable(p, &self.kernel, &self.kernel, self.border)))
+        filter_planes(raster, |p| {
+            Ok(match self.fast {
+                Some(b) if p.as_slice().iter().all(|v| v.is_finite()) => cascade_gauss(p, b, self.border),
+                Some(b) => {
+                    // Running sums would carry a NaN past its window: apply the
+                    // cascade's own kernel directly instead.
+                    let k = fastgauss::kernel(b);
+                    correlate_separable(p, &k, &k, self.border)
+                }
+                None => correlate_separable(p, &self.kernel, &self.kernel, self.border),
+            })
+        })
     }
 }
 
 pub static GAUSS: OpSpec = OpSpec {
     name: "gauss",
     family: "filter",
-    summary: "Gaussian blur (exact separable kernel)",
+    summary: "Gaussian blur (exact kernel, or a constant-time cascade for large sigma)",
     doc: gauss_doc!(),
     main: Some("sigma"),
     params: &[
@@ -94,12 +157,30 @@ pub static GAUSS: OpSpec = OpSpec {
             name: "truncate",
             kind: Kind::positive(0.0, 20.0),
             default: Some("4"),
-            help: "kernel radius in standard deviations",
+            help: "kernel radius in standard deviations (method=exact)",
         },
         params::BORDER_PARAM,
         params::FILL_PARAM,
+        ParamSpec {
+            name: "method",
+            kind: Kind::Choice(&["auto", "exact", "fast"]),
+            default: Some("auto"),
+            help: "exact kernel, constant-time box cascade, or auto (fast from sigma 10)",
+        },
     ],
-    build: |a| Ok(Box::new(Gauss::new(a.number("sigma")?, a.number("truncate")?, params::border(a)?)?)),
+    build: |a| {
+        let method = match a.choice("method")? {
+            "exact" => GaussMethod::Exact,
+            "fast" => GaussMethod::Fast,
+            _ => GaussMethod::Auto,
+        };
+        Ok(Box::new(Gauss::with_method(
+            a.number("sigma")?,
+            a.number("truncate")?,
+            method,
+            params::border(a)?,
+        )?))
+    },
 };
 
 /// Largest side of a `convolve` matrix.

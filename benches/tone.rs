@@ -32,8 +32,14 @@ fn main() {
     let (gray, codes) = luma_codes(&image);
     let gray_path = common::data_dir().join("luma-4000x3000.u8");
     std::fs::write(&gray_path, &codes).unwrap();
-    let workloads: [(&str, &str, &Raster); 4] = [
+    let rgb_path = common::data_dir().join("rgb-4000x3000.u8");
+    let interleaved: Vec<u8> =
+        (0..W * H * 3).map(|i| (image.planes()[i % 3].as_slice()[i / 3] * 255.0).round() as u8).collect();
+    std::fs::write(&rgb_path, &interleaved).unwrap();
+    let workloads: [(&str, &str, &Raster); 6] = [
         ("equalize", "equalize", &gray),
+        ("clahe-8x8", "clahe:tiles=8", &gray),
+        ("space-lab", "space:lab", &image),
         ("stretch", "stretch", &gray),
         ("binarize-otsu", "binarize:otsu", &gray),
         ("binarize-sauvola-25", "binarize:sauvola,window=25", &gray),
@@ -47,6 +53,6 @@ fn main() {
         let t = median_with(|| input.clone(), |r| drop(op.apply(r).unwrap()));
         ours.push((name, t));
     }
-    let reference = common::reference_times("reference_tone.py", &[&gray_path]);
-    print_table(mpix, &ours, &reference, &["cv2", "skimage", "numpy"]);
+    let reference = common::reference_times("reference_tone.py", &[&gray_path, &rgb_path]);
+    print_table(mpix, &ours, &reference, &["cv2", "skimage", "colour", "numpy"]);
 }

@@ -2,6 +2,7 @@
 //! numbers and slices; nothing here knows about files or pipelines.
 
 pub mod luma;
+pub mod models;
 pub mod srgb;
 
 /// Parses a colour: `white`, `black`, `gray` (sRGB 0.5) or `#rrggbb`, as

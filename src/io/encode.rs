@@ -12,7 +12,7 @@ use super::exif;
 use super::format::Format;
 use crate::color::srgb::{self, Quantiser};
 use crate::error::Error;
-use crate::raster::{Encoding, Layout, Plane, Raster, Resolution, ResolutionUnit, SampleType};
+use crate::raster::{ColourModel, Encoding, Layout, Plane, Raster, Resolution, ResolutionUnit, SampleType};
 
 /// JPEG chroma subsampling.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
@@ -102,7 +102,23 @@ impl EncodeOptions {
 /// Encodes `raster` in the options' format.
 pub fn encode(raster: &Raster, opts: &EncodeOptions) -> Result<Vec<u8>, Error> {
     let sample = opts.sample_for(raster)?;
-    let file_encoding = if opts.format == Format::Exr { Encoding::Linear } else { opts.encoding };
+    // A raster in another colour model (after `space`) is written as sRGB,
+    // except to a float TIFF, which keeps the model's channels as they are.
+    let raw = opts.format == Format::Tiff && sample == SampleType::F32;
+    let rgb;
+    let raster = if raster.model != ColourModel::Rgb && !raw {
+        rgb = crate::color::models::convert(raster.clone(), ColourModel::Rgb)?;
+        &rgb
+    } else {
+        raster
+    };
+    let file_encoding = if raster.model != ColourModel::Rgb {
+        raster.encoding
+    } else if opts.format == Format::Exr {
+        Encoding::Linear
+    } else {
+        opts.encoding
+    };
     let flat;
     let raster = if raster.layout().has_alpha() && !opts.format.has_alpha() {
         flat = flatten(raster, opts.background)?;

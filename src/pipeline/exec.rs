@@ -81,8 +81,11 @@ impl Pipeline {
         // Point functions waiting to run, in order; the conversions are owned here.
         let mut pending: Vec<Pending<'_>> = Vec::new();
         for (index, step) in self.steps.iter().enumerate() {
+            // Channels of another colour model (after `space`) are not light
+            // values: no transfer function applies to them.
             if let Some(target) = policy.encoding_for(step.op.domain())
                 && target != raster.encoding
+                && raster.model == crate::raster::ColourModel::Rgb
             {
                 pending.push(match target {
                     Encoding::Linear => Pending::ToLinear(ToLinear { levels: raster.levels }),

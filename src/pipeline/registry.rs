@@ -29,6 +29,9 @@ pub static OPERATORS: &[&OpSpec] = &[
     &tone::EQUALIZE,
     &tone::CLAHE,
     &colour::GRAY,
+    &colour::SPACE,
+    &colour::EXTRACT,
+    &colour::BALANCE,
     &threshold::BINARIZE,
 ];
 

@@ -82,6 +82,54 @@ impl Encoding {
     }
 }
 
+/// What the three colour planes hold. `Rgb` (the default) is R, G, B in the
+/// raster's `encoding`; the others are the results of the `space` operator and
+/// hold that model's channels as numbers in the model's own units (for
+/// example L* in 0..100). Gray rasters are always `Rgb`.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum ColourModel {
+    #[default]
+    Rgb,
+    /// CIE 1931 XYZ, D65 white, Y = 1 for white.
+    Xyz,
+    /// CIE 1976 L*a*b*, D65 white.
+    Lab,
+    /// CIE LCh(ab): L*, chroma, hue in degrees 0..360, D65 white.
+    Lch,
+    /// Oklab (L in 0..1).
+    Oklab,
+    /// HSV of the sRGB-encoded values: hue in degrees 0..360, S and V in 0..1.
+    Hsv,
+    /// HSL of the sRGB-encoded values: hue in degrees 0..360, S and L in 0..1.
+    Hsl,
+}
+
+impl ColourModel {
+    pub const NAMES: [&'static str; 7] = ["rgb", "xyz", "lab", "lch", "oklab", "hsv", "hsl"];
+
+    pub fn name(self) -> &'static str {
+        Self::NAMES[self as usize]
+    }
+
+    /// The model called `name`, if any.
+    pub fn from_name(name: &str) -> Option<ColourModel> {
+        use ColourModel::*;
+        [Rgb, Xyz, Lab, Lch, Oklab, Hsv, Hsl].into_iter().find(|m| m.name() == name)
+    }
+
+    /// The names of the three channels, in storage order.
+    pub fn channels(self) -> [&'static str; 3] {
+        match self {
+            ColourModel::Rgb => ["r", "g", "b"],
+            ColourModel::Xyz => ["x", "y", "z"],
+            ColourModel::Lab | ColourModel::Oklab => ["l", "a", "b"],
+            ColourModel::Lch => ["l", "c", "h"],
+            ColourModel::Hsv => ["h", "s", "v"],
+            ColourModel::Hsl => ["h", "s", "l"],
+        }
+    }
+}
+
 /// The sample type of a file: integer types map to `[0, 1]` on decode.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum SampleType {
@@ -170,6 +218,8 @@ pub struct Raster {
     /// The encoding of the colour planes; alpha is always linear coverage.
     pub encoding: Encoding,
     pub metadata: Metadata,
+    /// What the colour planes hold; `Rgb` unless a `space` step changed it.
+    pub model: ColourModel,
     /// `Some(n)` when every colour sample is known to be an exact multiple of
     /// `1/n` (an untouched 8- or 16-bit source), so transfer functions may use
     /// lookup tables indexed by the integer code.
@@ -190,7 +240,14 @@ impl Raster {
         if planes.iter().any(|p| p.width() != w || p.height() != h) {
             return Err(Error::Internal("planes of one raster differ in size".into()));
         }
-        Ok(Raster { planes, layout, encoding, metadata: Metadata::default(), levels: None })
+        Ok(Raster {
+            planes,
+            layout,
+            encoding,
+            metadata: Metadata::default(),
+            model: ColourModel::Rgb,
+            levels: None,
+        })
     }
 
     pub fn width(&self) -> usize {
@@ -229,6 +286,7 @@ impl Raster {
         let mut out = Raster::new(planes, layout, self.encoding)?;
         out.metadata = self.metadata;
         out.levels = self.levels;
+        out.model = if layout.colour_channels() == 3 { self.model } else { ColourModel::Rgb };
         Ok(out)
     }
 

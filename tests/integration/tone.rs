@@ -1,5 +1,5 @@
-//! Cross-checks of `stretch` and `binarize` against committed scikit-image and
-//! numpy fixtures (tests/reference/make_tone.py writes them to
+//! Cross-checks of `stretch`, `equalize`, `binarize` and `space` against
+//! committed scikit-image, numpy and colour-science fixtures (tests/reference/make_tone.py writes them to
 //! tests/reference/fixtures/tone/ and lists them in manifest.toml). Each case is
 //! built through the public step grammar and run on a gray raster of exact
 //! 8-bit codes (code/255, `levels = 255`, as the decoder makes them) or of float
@@ -52,6 +52,8 @@ struct Case {
     thresholds: Option<String>,
     low_value: Option<f64>,
     high_value: Option<f64>,
+    whitepoint_x: Option<f64>,
+    whitepoint_y: Option<f64>,
 }
 
 fn manifest() -> Manifest {
@@ -170,4 +172,78 @@ fn equalize_matches_scikit_image_equalize_hist() {
         n += 1;
     }
     assert_eq!(n, 3);
+}
+
+/// space against colour-science on a 9×9×9 grid of sRGB colours (black, white,
+/// the primaries and secondaries among them): every channel within 1e-4, the
+/// bound the issue sets (palette and colour-science both compute in f64 from the
+/// same derived matrix; the rest is f32 storage, ≤ 100·2⁻²⁴ ≈ 6e-6 for L*).
+/// White's chromaticity must be D65's published (0.3127, 0.3290) (CIE 15:2004,
+/// Table T.3, to 4 digits as IEC 61966-2-1 gives it).
+#[test]
+fn space_matches_colour_science_on_a_grid() {
+    let m = manifest();
+    let mut n = 0;
+    let mut worst_all = Vec::new();
+    for case in m.case.iter().filter(|c| c.id.starts_with("srgb-grid-")) {
+        let grid = read_npy(&fixtures().join(&case.input));
+        let want = read_npy(&fixtures().join(&case.output));
+        let count = grid.height();
+        let planes = (0..3).map(|c| Plane::from_fn(count, 1, |i, _| grid.get(c, i)).unwrap()).collect();
+        let r = Raster::new(planes, Layout::Rgb, Encoding::Srgb).unwrap();
+        let out = Step::parse(&case.step).unwrap().op.apply(r).unwrap();
+        let (mut worst, mut at) = (0.0f32, (0, 0));
+        for i in 0..count {
+            for c in 0..3 {
+                let d = (out.planes()[c].get(i, 0) - want.get(c, i)).abs();
+                if d > worst {
+                    worst = d;
+                    at = (i, c);
+                }
+            }
+        }
+        eprintln!(
+            "{}: worst difference {worst:e} at colour {}, channel {} (tolerance 1e-4)",
+            case.id, at.0, at.1
+        );
+        worst_all.push((case.id.clone(), worst));
+        if case.id.ends_with("xyz") {
+            let last = count - 1; // sRGB (1, 1, 1)
+            let xyz: Vec<f32> = (0..3).map(|c| out.planes()[c].get(last, 0)).collect();
+            let s: f32 = xyz.iter().sum();
+            for (got, published) in [(xyz[0] / s, 0.3127f32), (xyz[1] / s, 0.3290)] {
+                assert!((got - published).abs() < 1e-4, "white chromaticity {got} vs {published}");
+            }
+            assert!((f64::from(xyz[0] / s) - case.whitepoint_x.unwrap()).abs() < 1e-4);
+            assert!((f64::from(xyz[1] / s) - case.whitepoint_y.unwrap()).abs() < 1e-4);
+        }
+        n += 1;
+    }
+    assert_eq!(n, 3);
+    assert!(worst_all.iter().all(|(_, w)| *w <= 1e-4), "{worst_all:?}");
+}
+
+/// A raster left in another colour model is written as sRGB (here PNG, back to
+/// the same 8-bit codes), while a 32-bit float TIFF keeps the model's channels.
+#[test]
+fn encoding_after_space_converts_back_unless_float_tiff() {
+    use pumice::io::{self, DecodeOptions, EncodeOptions, Format};
+    use pumice::raster::{ColourModel, SampleType};
+    let planes = (0..3)
+        .map(|c| Plane::from_fn(16, 4, |x, y| ((x * 13 + y * 29 + c * 71) % 256) as f32 / 255.0).unwrap());
+    let mut r = Raster::new(planes.collect(), Layout::Rgb, Encoding::Srgb).unwrap();
+    r.levels = Some(255);
+    let lab = pumice::pipeline::Pipeline::new(vec![Step::parse("space:lab").unwrap()])
+        .run(r.clone(), pumice::pipeline::DomainPolicy::Auto)
+        .unwrap();
+    assert_eq!(lab.model, ColourModel::Lab);
+    let png = io::encode(&lab, &EncodeOptions::new(Format::Png)).unwrap();
+    let back = io::decode(&png, &DecodeOptions::default()).unwrap();
+    assert_eq!(back.planes(), r.planes(), "PNG of a Lab raster holds the original sRGB codes");
+    let tiff_opts = EncodeOptions { sample: Some(SampleType::F32), ..EncodeOptions::new(Format::Tiff) };
+    let tiff = io::encode(&lab, &tiff_opts).unwrap();
+    let raw = io::decode(&tiff, &DecodeOptions::default()).unwrap();
+    for c in 0..3 {
+        assert_eq!(raw.planes()[c], lab.planes()[c], "float TIFF keeps channel {c} of Lab");
+    }
 }

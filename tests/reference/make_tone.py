@@ -15,6 +15,10 @@ Reference functions and how their parameters map to Pumice's:
 * equalize             <->  skimage.exposure.equalize_hist(codes) on the uint8
   image (one bin per code, out = cdf(code)); on float data
   equalize_hist(x, nbins=65536), Pumice's float binning.
+* space:to=xyz|lab|oklab  <->  colour.RGB_to_XYZ(rgb, sRGB colourspace with the
+  matrix derived from its primaries and D65, apply_cctf_decoding=True), then
+  colour.XYZ_to_Lab(xyz, D65) / colour.XYZ_to_Oklab(xyz), on a 9x9x9 grid of
+  sRGB values stored one colour per row (N x 3).
 * binarize:sauvola,window=W,k=K,r=R  <->  T = skimage.filters.threshold_sauvola(
   x, window_size=W, k=K, r=R) on x = codes/255 in float64; result x > T.
   scikit-image pads with numpy's 'reflect' mode (edge sample not repeated),
@@ -41,6 +45,7 @@ import tempfile
 import tomllib
 
 import numpy as np
+import colour
 import skimage
 from skimage import data, exposure, filters
 
@@ -178,7 +183,37 @@ def generate(folder):
             "output": "float-gamma-equalize.npy",
         }
     )
+    # sRGB -> XYZ -> Lab and Oklab on a 9x9x9 grid of sRGB-encoded colours
+    # (it holds black, white, the primaries and secondaries), one colour per row.
+    grid = np.linspace(0.0, 1.0, 9)
+    rgb = np.stack(np.meshgrid(grid, grid, grid, indexing="ij"), -1).reshape(-1, 3)
+    save(folder, "srgb-grid.npy", rgb.astype(np.float32))
+    srgb = colour.RGB_COLOURSPACES["sRGB"].copy()
+    # The matrix derived from the primaries and the D65 chromaticity (IEC 61966-2-1
+    # §5.2 rounds it to 4 digits; palette derives it, so the derived one is compared).
+    srgb.use_derived_transformation_matrices(True)
+    xyz = colour.RGB_to_XYZ(rgb.astype(np.float32).astype(np.float64), srgb, apply_cctf_decoding=True)
+    d65 = srgb.whitepoint
+    for model, values in [
+        ("xyz", xyz),
+        ("lab", colour.XYZ_to_Lab(xyz, d65)),
+        ("oklab", colour.XYZ_to_Oklab(xyz)),
+    ]:
+        save(folder, f"srgb-grid-{model}.npy", values.astype(np.float32))
+        cases.append(
+            {
+                "id": f"srgb-grid-{model}",
+                "reference": f"colour.RGB_to_XYZ (sRGB, derived matrix){'' if model == 'xyz' else ' + colour.XYZ_to_' + {'lab': 'Lab', 'oklab': 'Oklab'}[model]}",
+                "step": f"space:to={model}",
+                "input": "srgb-grid.npy",
+                "scale": 1.0,
+                "output": f"srgb-grid-{model}.npy",
+                "whitepoint_x": float(d65[0]),
+                "whitepoint_y": float(d65[1]),
+            }
+        )
     manifest = {
+        "colour_version": colour.__version__,
         "numpy_version": np.__version__,
         "skimage_version": skimage.__version__,
         "case": cases,
@@ -213,7 +248,7 @@ def check():
     with tempfile.TemporaryDirectory() as tmp:
         fresh = generate(pathlib.Path(tmp))
         committed = tomllib.loads((FIXTURES / "manifest.toml").read_text())
-        for key in ("numpy_version", "skimage_version"):
+        for key in ("numpy_version", "skimage_version", "colour_version"):
             if committed.get(key) != fresh[key]:
                 print(f"note: fixtures made with {key} {committed.get(key)}, checking with {fresh[key]}")
         if len(committed["case"]) != len(fresh["case"]):

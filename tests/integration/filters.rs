@@ -1,4 +1,5 @@
-//! Cross-checks of `box`, `median`, `sobel`, `scharr`, `laplace` and `sharpen` against
+//! CLI checks (every operator listed, usable in one-off runs and recipes, bad
+//! parameters refused on one line) and cross-checks of `box`, `median`, `sobel`, `scharr`, `laplace` and `sharpen` against
 //! committed fixtures (tests/reference/make_filters.py, listed in
 //! fixtures/filters/manifest.toml): scipy.ndimage, OpenCV's Python bindings and
 //! scikit-image, each case naming its reference function. Every case runs the
@@ -163,4 +164,80 @@ fn median_matches_scipy_median_filter_and_opencv_median_blur() {
     // scipy.ndimage.median_filter (square r = 1, 2, 4; disk r = 1, 3; every mode)
     // and cv2.medianBlur (ksize 3, 5, 7 on 8-bit codes, border replicate): exact.
     check_all("median", &ALL);
+}
+
+/// The steps of this area as a user would type them, one per operator and method.
+const ONE_OFF_STEPS: [&str; 11] = [
+    "box:2",
+    "median:1",
+    "median:radius=3,shape=disk",
+    "sharpen:amount=1.5,sigma=1,threshold=0.01",
+    "sobel",
+    "scharr:output=direction,on=channels",
+    "laplace:neighbours=8",
+    "laplace:sigma=1.5",
+    "gauss:sigma=12",
+    "gauss:sigma=1,method=fast",
+    "gauss:sigma=30,method=exact,border=wrap",
+];
+
+#[test]
+fn every_operator_is_listed_and_runs_from_the_command_line_and_a_recipe() {
+    use crate::cli::small_png;
+    use crate::harness::{Scratch, pumice};
+    let list = pumice(&["ops"]).ok().stdout();
+    for name in ["box", "median", "sharpen", "sobel", "scharr", "laplace"] {
+        assert!(list.contains(name), "`pumice ops` lacks {name}\n{list}");
+        let doc = pumice(&["ops", name]).ok().stdout();
+        assert!(doc.contains("Domain") && doc.contains("Border") && doc.contains("Source"), "{name}: {doc}");
+    }
+    let s = Scratch::new();
+    let input = small_png(&s, "in.png").display().to_string();
+    for (i, step) in ONE_OFF_STEPS.iter().enumerate() {
+        let out = s.path(&format!("out{i}.png")).display().to_string();
+        pumice(&["run", &input, "-o", &out, "-s", step]).ok();
+        assert!(std::path::Path::new(&out).exists(), "{step}: no output");
+    }
+    let recipe: String = ONE_OFF_STEPS[..4]
+        .iter()
+        .map(|step| {
+            let (op, params) = step.split_once(':').unwrap_or((step, ""));
+            let mut t = format!("[[step]]\nop = \"{op}\"\n");
+            for kv in params.split(',').filter(|kv| !kv.is_empty()) {
+                let (k, v) = kv.split_once('=').unwrap_or(("radius", kv));
+                let v = if v.parse::<f64>().is_ok() { v.to_string() } else { format!("\"{v}\"") };
+                t.push_str(&format!("{k} = {v}\n"));
+            }
+            t
+        })
+        .collect();
+    s.write("r.toml", recipe.as_bytes());
+    let r = s.path("r.toml").display().to_string();
+    let checked = pumice(&["recipe", "check", &r]).ok().stdout();
+    assert!(checked.contains("median:radius=3,shape=disk"), "{checked}");
+    pumice(&["run", &input, "-o", &s.path("recipe.png").display().to_string(), "-r", &r]).ok();
+}
+
+#[test]
+fn bad_parameters_are_usage_errors_on_one_line() {
+    use crate::cli::small_png;
+    use crate::harness::{Scratch, pumice};
+    let s = Scratch::new();
+    let input = small_png(&s, "in.png").display().to_string();
+    let out = s.path("out.png").display().to_string();
+    for (step, says) in [
+        ("box:0", "radius"),
+        ("box:2.5", "whole number"),
+        ("median:radius=300", "radius"),
+        ("median:1,shape=round", "expected one of square, disk"),
+        ("sharpen:sigma=0", "sigma"),
+        ("sharpen:amount=-1", "amount"),
+        ("sobel:output=angle", "expected one of x, y, magnitude, direction"),
+        ("laplace:neighbours=6", "expected one of 4, 8"),
+        ("laplace:sigma=-1", "sigma"),
+        ("gauss:2,method=quick", "expected one of auto, exact, fast"),
+    ] {
+        pumice(&["run", &input, "-o", &out, "-s", step]).expect_code(2).stderr_has(&[says]).one_line_error();
+    }
+    assert!(!std::path::Path::new(&out).exists());
 }

@@ -1,8 +1,8 @@
 //! CLI checks (every operator listed, usable in one-off runs and recipes, bad
-//! parameters refused on one line) and cross-checks of `box`, `median`, `sobel`, `scharr`, `laplace` and `sharpen` against
-//! committed fixtures (tests/reference/make_filters.py, listed in
-//! fixtures/filters/manifest.toml): scipy.ndimage, OpenCV's Python bindings and
-//! scikit-image, each case naming its reference function. Every case runs the
+//! parameters refused on one line) and cross-checks of `box`, `median`,
+//! `sobel`, `scharr`, `laplace` and `sharpen` against committed fixtures
+//! (tests/reference/make_filters.py, listed in fixtures/filters/manifest.toml):
+//! scipy.ndimage, OpenCV's Python bindings and scikit-image, each case naming its reference function. Every case runs the
 //! recorded Pumice step through the public step grammar on a linear gray raster.
 //!
 //! Edge cases covered by the fixtures: 1×N and N×1 inputs (one direction is

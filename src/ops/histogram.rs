@@ -51,7 +51,10 @@ impl Binning {
     #[inline]
     pub fn index(&self, v: f32) -> usize {
         match *self {
-            Binning::Codes { n } => (f64::from(v) * f64::from(n)).round().clamp(0.0, f64::from(n)) as usize,
+            // f32 is exact enough: a stored code k/n (n ≤ 65535) is off by at most
+            // 2⁻²⁴ relative, so v·n is within 0.01 of k and rounds to it (checked
+            // for every 16-bit code in the tests).
+            Binning::Codes { n } => (((v * n as f32) + 0.5).max(0.0) as usize).min(n as usize),
             Binning::Range { lo, hi, bins } => {
                 let t = (f64::from(v) - lo) / (hi - lo) * bins as f64;
                 (t.floor().max(0.0) as usize).min(bins - 1)
@@ -166,7 +169,8 @@ pub fn percentile(counts: &[u64], binning: &Binning, p: f64) -> Option<f64> {
 #[cfg(test)]
 mod tests {
     //! Edge cases: no finite sample, a constant plane (one bin), NaN skipped,
-    //! percentiles at 0 and 100, values on the top edge of a range.
+    //! percentiles at 0 and 100, values on the top edge of a range, every
+    //! 8- and 16-bit code in its own bin, values outside 0..1 in the end bins.
     use super::*;
 
     #[test]
@@ -179,6 +183,18 @@ mod tests {
         assert!((percentile(&h, &b, 50.0).unwrap() - 0.5).abs() < 1e-12);
         assert_eq!(percentile(&h, &b, 0.0), Some(0.0));
         assert_eq!(percentile(&h, &b, 100.0), Some(1.0));
+    }
+
+    #[test]
+    fn every_code_lands_in_its_own_bin() {
+        for n in [255u32, 65535] {
+            let b = Binning::Codes { n };
+            for k in 0..=n {
+                assert_eq!(b.index(k as f32 / n as f32), k as usize, "code {k} of {n}");
+            }
+            assert_eq!(b.index(-0.2), 0);
+            assert_eq!(b.index(1.7), n as usize);
+        }
     }
 
     #[test]

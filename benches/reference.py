@@ -27,18 +27,11 @@ Workloads (4000x3000 RGB):
 import argparse
 import io
 import json
-import statistics
 import sys
-import time
+
+from timing import median_time
 
 
-def median_time(fn, repeats):
-    times = []
-    for _ in range(repeats):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return statistics.median(times)
 
 
 def main():

@@ -25,20 +25,13 @@ OpenCV runs with 2 threads (cv2.setNumThreads(2)); scipy is single-threaded.
 """
 import argparse
 import json
-import statistics
 import sys
-import time
 
 import numpy as np
 
+from timing import median_time
 
-def median_time(fn, repeats):
-    times = []
-    for _ in range(repeats):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return statistics.median(times)
+
 
 
 def main():

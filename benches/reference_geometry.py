@@ -10,18 +10,11 @@ Prints {"lib.workload": median seconds}. Workloads (RGB 8-bit unless noted):
 OpenCV runs with 2 threads.
 """
 import json
-import statistics
 import sys
-import time
+
+from timing import median_time
 
 
-def median_time(fn, repeats=5):
-    t = []
-    for _ in range(repeats):
-        s = time.perf_counter()
-        fn()
-        t.append(time.perf_counter() - s)
-    return statistics.median(t)
 
 
 def main():

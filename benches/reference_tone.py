@@ -19,22 +19,15 @@ both sides measure the same data in the same run. Prints one JSON object:
 """
 import argparse
 import json
-import statistics
 import sys
-import time
 
 import numpy as np
+
+from timing import median_time
 
 W, H = 4000, 3000
 
 
-def median_time(fn, repeats):
-    times = []
-    for _ in range(repeats):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return statistics.median(times)
 
 
 def main():

@@ -70,8 +70,7 @@ fn bytes(name: &str) -> Vec<u8> {
 }
 
 fn manifest() -> Manifest {
-    let text = std::fs::read_to_string(dir().join("manifest.toml")).expect("read manifest.toml");
-    toml::from_str(&text).expect("parse manifest.toml")
+    crate::harness::read_manifest(&dir())
 }
 
 /// The naive formula on inks given as 8-bit codes.

@@ -163,3 +163,10 @@ pub fn read_image(path: &Path) -> pumice::raster::Raster {
     let bytes = std::fs::read(path).expect("read the image");
     pumice::io::decode(&bytes, &pumice::io::DecodeOptions::default()).expect("decode the image")
 }
+
+/// Reads and parses `manifest.toml` in a fixture folder, naming the file on failure.
+pub fn read_manifest<T: serde::de::DeserializeOwned>(folder: &Path) -> T {
+    let path = folder.join("manifest.toml");
+    let text = std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("read {}: {e}", path.display()));
+    toml::from_str(&text).unwrap_or_else(|e| panic!("parse {}: {e}", path.display()))
+}

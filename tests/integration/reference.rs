@@ -66,9 +66,7 @@ struct Case {
 }
 
 fn manifest() -> Manifest {
-    let path = fixtures().join("manifest.toml");
-    let text = std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("read {}: {e}", path.display()));
-    toml::from_str(&text).unwrap_or_else(|e| panic!("parse {}: {e}", path.display()))
+    crate::harness::read_manifest(&fixtures())
 }
 
 /// Reads a `.npy` file holding a 2-D little-endian `f32` array in C order

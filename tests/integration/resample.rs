@@ -31,8 +31,7 @@ fn folder() -> PathBuf {
 }
 
 fn cases(kind: &str) -> Vec<Case> {
-    let text = std::fs::read_to_string(folder().join("manifest.toml")).expect("read the resample manifest");
-    let m: Manifest = toml::from_str(&text).expect("parse the resample manifest");
+    let m: Manifest = crate::harness::read_manifest(&folder());
     m.case.into_iter().filter(|c| c.kind == kind).collect()
 }
 

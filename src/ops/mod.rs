@@ -96,6 +96,15 @@ pub fn filter_planes(
     raster: Raster,
     filter: impl Fn(&Plane) -> Result<Plane, Error> + Sync,
 ) -> Result<Raster, Error> {
+    filter_planes_indexed(raster, |_, p| filter(p))
+}
+
+/// [`filter_planes`] for filters that treat planes differently: `filter` also
+/// gets the plane's index (the colour planes first, alpha last).
+pub fn filter_planes_indexed(
+    raster: Raster,
+    filter: impl Fn(usize, &Plane) -> Result<Plane, Error> + Sync,
+) -> Result<Raster, Error> {
     let layout = raster.layout();
     let colour = layout.colour_channels();
     let mut raster = raster;
@@ -105,7 +114,8 @@ pub fn filter_planes(
             multiply_in_place(p, &alpha[0]);
         }
     }
-    let mut filtered = raster.planes().iter().map(&filter).collect::<Result<Vec<_>, _>>()?;
+    let mut filtered =
+        raster.planes().iter().enumerate().map(|(i, p)| filter(i, p)).collect::<Result<Vec<_>, _>>()?;
     if layout.has_alpha() {
         let (colour_planes, alpha) = filtered.split_at_mut(colour);
         for p in colour_planes.iter_mut() {

@@ -4,7 +4,7 @@
 use super::kernels::Filter;
 use crate::error::{Error, ParamError};
 use crate::ops::params::Args;
-use crate::ops::{Domain, Operator};
+use crate::ops::{Domain, Operator, filter_planes_indexed};
 use crate::raster::{Plane, Raster};
 use crate::tile;
 
@@ -115,33 +115,12 @@ impl Operator for Rotate {
         let fills = super::fill_values(&raster, self.fill);
         let layout = raster.layout();
         let n = layout.colour_channels();
-        let mut planes: Vec<Plane> = raster.planes().to_vec();
-        // Premultiply while mixing, so transparent surroundings do not darken edges.
-        if layout.has_alpha() {
-            let (colour, alpha) = planes.split_at_mut(n);
-            for p in colour {
-                p.as_mut_slice().iter_mut().zip(alpha[0].as_slice()).for_each(|(v, a)| *v *= a);
-            }
-        }
         let alpha_fill = fills.last().copied().unwrap_or(1.0);
-        let mut turned = planes
-            .iter()
-            .enumerate()
-            .map(|(i, p)| {
-                let fill = if layout.has_alpha() && i < n { fills[i] * alpha_fill } else { fills[i] };
-                self.sample(p, ow, oh, fill)
-            })
-            .collect::<Result<Vec<_>, _>>()?;
-        if layout.has_alpha() {
-            let (colour, alpha) = turned.split_at_mut(n);
-            for p in colour {
-                p.as_mut_slice()
-                    .iter_mut()
-                    .zip(alpha[0].as_slice())
-                    .for_each(|(v, a)| *v = if *a > 0.0 { *v / a } else { 0.0 });
-            }
-        }
-        raster.with_planes(turned, layout)
+        // Colour planes arrive premultiplied by alpha, so their fill is too.
+        filter_planes_indexed(raster, |i, p| {
+            let fill = if layout.has_alpha() && i < n { fills[i] * alpha_fill } else { fills[i] };
+            self.sample(p, ow, oh, fill)
+        })
     }
 }
 

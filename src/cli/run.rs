@@ -199,6 +199,9 @@ pub fn run(args: RunArgs) -> Exit {
                     summary.output_sample.name(),
                     summary.elapsed.as_secs_f64() * 1000.0
                 );
+                for note in &summary.notes {
+                    eprintln!("{note}");
+                }
             }
             Exit::Done
         }

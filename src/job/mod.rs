@@ -15,7 +15,7 @@ use crate::error::Error;
 use crate::io::file::{self, Location};
 use crate::io::{self as codec, DecodeOptions, EncodeOptions, Format};
 use crate::pipeline::Pipeline;
-use crate::raster::{Layout, SampleType};
+use crate::raster::{Layout, Note, SampleType};
 
 /// Which part of a job failed.
 #[derive(Clone, Debug, PartialEq, Eq)]
@@ -79,6 +79,8 @@ pub struct JobSummary {
     pub output_size: (usize, usize),
     pub output_sample: SampleType,
     pub output_format: Format,
+    /// What the steps measured (see [`Note`]).
+    pub notes: Vec<Note>,
     pub elapsed: Duration,
 }
 
@@ -215,6 +217,7 @@ impl<'a> Job<'a> {
             output_size: (raster.width(), raster.height()),
             output_sample,
             output_format: self.format,
+            notes: raster.metadata.notes.clone(),
             elapsed: start.elapsed(),
         })
     }

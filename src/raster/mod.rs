@@ -205,6 +205,40 @@ pub struct Metadata {
     pub resolution: Option<Resolution>,
     /// The sample type the source file stored, if it came from a file.
     pub source_sample: Option<SampleType>,
+    /// Measurements steps made while running (a skew angle, a count of
+    /// repaired pixels), in the order they were made, for `-v` and the run report.
+    pub notes: Vec<Note>,
+}
+
+/// One measurement a step reported, e.g. `deskew` · `angle` · `-1.25` · `degrees`.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Note {
+    /// The operator that made it.
+    pub operator: &'static str,
+    /// What was measured, a short lower-case word or phrase.
+    pub name: &'static str,
+    pub value: NoteValue,
+}
+
+/// The value of a [`Note`].
+#[derive(Clone, Debug, PartialEq)]
+pub enum NoteValue {
+    /// A number with its unit (empty for counts and ratios).
+    Number { value: f64, unit: &'static str },
+    /// A finding that is not a number, e.g. "no skew found".
+    Text(String),
+}
+
+impl std::fmt::Display for Note {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match &self.value {
+            NoteValue::Number { value, unit: "" } => write!(f, "{}: {} = {value}", self.operator, self.name),
+            NoteValue::Number { value, unit } => {
+                write!(f, "{}: {} = {value} {unit}", self.operator, self.name)
+            }
+            NoteValue::Text(t) => write!(f, "{}: {}: {t}", self.operator, self.name),
+        }
+    }
 }
 
 /// An image: 1–4 planes of equal size, their layout and encoding, and metadata.

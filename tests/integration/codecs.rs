@@ -109,6 +109,7 @@ fn metadata_is_carried_to_png_tiff_and_jpeg() {
         // REFERENCES.md [K8]: 300 dpi = 11811.02 px/m; PNG stores the integer 11811.
         resolution: Some(Resolution { x: 300.0, y: 300.0, unit: ResolutionUnit::Inch }),
         source_sample: Some(SampleType::U8),
+        notes: Vec::new(),
     };
     for format in [Format::Png, Format::Tiff, Format::Jpeg, Format::Webp] {
         let bytes = io::encode(&r, &EncodeOptions::new(format)).unwrap();

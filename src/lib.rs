@@ -6,6 +6,7 @@
 //! ([`io::encode`]). [`job`] ties these together for one input and one output;
 //! everything the command line does is callable from here.
 
+pub mod batch;
 pub mod color;
 pub mod error;
 pub mod io;

@@ -10,7 +10,7 @@ mod run;
 use clap::{Parser, Subcommand};
 
 /// Exit codes, as `--help` lists them.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord)]
 pub enum Exit {
     /// Everything was done.
     Done = 0,
@@ -18,6 +18,8 @@ pub enum Exit {
     InputFailed = 1,
     /// Bad usage or a bad recipe, found before any work; nothing was written.
     Usage = 2,
+    /// Stopped by SIGINT or SIGTERM: finished files were kept, no partial file was left.
+    Interrupted = 130,
 }
 
 const AFTER_HELP: &str = "\
@@ -25,6 +27,7 @@ Exit codes:
   0  all done
   1  some inputs failed (each is reported; the others were written)
   2  bad usage or bad recipe, found before any work (nothing written)
+  130  interrupted (Ctrl-C or SIGTERM): finished outputs kept, no partial files
 
 Run `pumice ops` for the operators and `pumice ops NAME` for one operator's
 formula, parameters and source.";
@@ -39,7 +42,7 @@ pub struct Cli {
 
 #[derive(Debug, Subcommand)]
 pub enum Command {
-    /// Run steps on an image and write the result
+    /// Run steps on images (one file or a whole batch) and write the results
     Run(Box<run::RunArgs>),
     /// List the operators, or describe one
     Ops(ops::OpsArgs),

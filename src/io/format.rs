@@ -32,6 +32,18 @@ impl Format {
         }
     }
 
+    /// The usual file-name extension of a format Pumice writes (`None` for read-only formats).
+    pub fn extension(self) -> Option<&'static str> {
+        match self {
+            Format::Png => Some("png"),
+            Format::Jpeg => Some("jpg"),
+            Format::Tiff => Some("tif"),
+            Format::Webp => Some("webp"),
+            Format::Exr => Some("exr"),
+            Format::Bmp | Format::Gif => None,
+        }
+    }
+
     /// The format a file name's extension names (case-insensitive).
     pub fn from_extension(ext: &str) -> Option<Format> {
         Some(match ext.to_ascii_lowercase().as_str() {

@@ -79,6 +79,10 @@ pub struct JobSummary {
     pub output_size: (usize, usize),
     pub output_sample: SampleType,
     pub output_format: Format,
+    /// SHA-256 (FIPS 180-4) of the input file's bytes, in lower-case hex.
+    pub input_sha256: String,
+    /// SHA-256 of the bytes written.
+    pub output_sha256: String,
     /// What the steps measured (see [`Note`]).
     pub notes: Vec<Note>,
     pub elapsed: Duration,
@@ -107,38 +111,8 @@ impl<'a> Job<'a> {
         overwrite: bool,
     ) -> Result<Job<'a>, JobError> {
         let fail = |m: String| JobError { stage: Stage::Plan, error: Error::Recipe(m) };
-        let format = match (&options.format, &output) {
-            (Some(f), _) => *f,
-            (None, Location::Path(p)) => Format::from_path(p).ok_or_else(|| {
-                fail(format!(
-                    "cannot tell the output format from `{}`; use an extension or --format ({})",
-                    p.display(),
-                    Format::WRITE_NAMES.join(", ")
-                ))
-            })?,
-            (None, Location::Std) => {
-                return Err(fail(format!(
-                    "writing to standard output needs --format ({})",
-                    Format::WRITE_NAMES.join(", ")
-                )));
-            }
-        };
-        if format.deepest_sample().is_none() {
-            return Err(fail(format!(
-                "Pumice does not write {}; choose one of {}",
-                format.name(),
-                Format::WRITE_NAMES.join(", ")
-            )));
-        }
-        if let Some(s) = options.sample
-            && !format.can_write(s)
-        {
-            return Err(fail(format!(
-                "{} cannot hold {} samples; choose another --depth or format",
-                format.name(),
-                s.name()
-            )));
-        }
+        let format =
+            output_format(&output, options).map_err(|error| JobError { stage: Stage::Plan, error })?;
         if let Location::Path(out) = &output {
             let parent = match out.parent() {
                 Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
@@ -168,7 +142,23 @@ impl<'a> Job<'a> {
     /// Reads, decodes, runs the steps, encodes and writes. Nothing is written
     /// unless every stage before writing succeeded.
     pub fn run(&self) -> Result<JobSummary, JobError> {
+        self.run_unless(&|| false)
+    }
+
+    /// [`Job::run`], giving up before decoding, before the steps and before
+    /// writing when `cancelled()` has become true (a stage already under way
+    /// finishes first). A cancelled job writes nothing and fails with an
+    /// `Interrupted` I/O error at the stage it stopped before.
+    pub fn run_unless(&self, cancelled: &dyn Fn() -> bool) -> Result<JobSummary, JobError> {
         let start = Instant::now();
+        let check = |stage: Stage| {
+            if cancelled() {
+                let error = std::io::Error::new(std::io::ErrorKind::Interrupted, "interrupted").into();
+                Err(JobError { stage, error })
+            } else {
+                Ok(())
+            }
+        };
         let o = self.options;
         let at = |stage: Stage| move |error: Error| JobError { stage: stage.clone(), error };
         let bytes =
@@ -178,12 +168,15 @@ impl<'a> Job<'a> {
             encoding: o.input_encoding,
             keep_orientation: o.keep_orientation,
         };
+        let input_sha256 = sha256_hex(&bytes);
+        check(Stage::Decode)?;
         let raster = codec::decode(&bytes, &decode_opts).map_err(at(Stage::Decode))?;
         drop(bytes);
         let file_encoding = raster.encoding;
         let input_size = (raster.width(), raster.height());
         let input_layout = raster.layout();
         let input_sample = raster.metadata.source_sample.unwrap_or(SampleType::F32);
+        check(Stage::Step { index: 1, name: self.pipeline.steps.first().map_or("none", |s| s.spec.name) })?;
         let raster = self.pipeline.run(raster, o.domain).map_err(|f| JobError {
             stage: Stage::Step { index: f.index + 1, name: self.pipeline.steps[f.index].spec.name },
             error: f.error,
@@ -199,6 +192,7 @@ impl<'a> Job<'a> {
         };
         let output_sample = encode_opts.sample_for(&raster).map_err(at(Stage::Encode))?;
         let encoded = codec::encode(&raster, &encode_opts).map_err(at(Stage::Encode))?;
+        check(Stage::Write)?;
         file::write_atomic(&self.output, &encoded, self.overwrite).map_err(|e| {
             let error = if e.kind() == std::io::ErrorKind::AlreadyExists {
                 Error::Recipe(format!(
@@ -217,14 +211,61 @@ impl<'a> Job<'a> {
             output_size: (raster.width(), raster.height()),
             output_sample,
             output_format: self.format,
+            input_sha256,
+            output_sha256: sha256_hex(&encoded),
             notes: raster.metadata.notes.clone(),
             elapsed: start.elapsed(),
         })
     }
 }
 
+/// The format `output` will be written in (`--format`, else the extension),
+/// checked to be one Pumice writes at the requested depth.
+pub fn output_format(output: &Location, options: &RunOptions) -> Result<Format, Error> {
+    let format = match (&options.format, output) {
+        (Some(f), _) => *f,
+        (None, Location::Path(p)) => Format::from_path(p).ok_or_else(|| {
+            Error::Recipe(format!(
+                "cannot tell the output format from `{}`; use an extension or --format ({})",
+                p.display(),
+                Format::WRITE_NAMES.join(", ")
+            ))
+        })?,
+        (None, Location::Std) => {
+            return Err(Error::Recipe(format!(
+                "writing to standard output needs --format ({})",
+                Format::WRITE_NAMES.join(", ")
+            )));
+        }
+    };
+    if format.deepest_sample().is_none() {
+        return Err(Error::Recipe(format!(
+            "Pumice does not write {}; choose one of {}",
+            format.name(),
+            Format::WRITE_NAMES.join(", ")
+        )));
+    }
+    if let Some(s) = options.sample
+        && !format.can_write(s)
+    {
+        return Err(Error::Recipe(format!(
+            "{} cannot hold {} samples; choose another --depth or format",
+            format.name(),
+            s.name()
+        )));
+    }
+    Ok(format)
+}
+
+/// SHA-256 (FIPS 180-4) of `bytes` as lower-case hex.
+pub fn sha256_hex(bytes: &[u8]) -> String {
+    use sha2::Digest;
+    let digest = sha2::Sha256::digest(bytes);
+    digest.iter().map(|b| format!("{b:02x}")).collect()
+}
+
 /// True when `a` and `b` name the same file (following links; `b` may not exist yet).
-fn same_file(a: &Path, b: &Path) -> bool {
+pub(crate) fn same_file(a: &Path, b: &Path) -> bool {
     let canon = |p: &Path| -> Option<PathBuf> {
         if let Ok(c) = p.canonicalize() {
             return Some(c);

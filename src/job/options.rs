@@ -40,6 +40,47 @@ impl Default for RunOptions {
     }
 }
 
+impl RunOptions {
+    /// The options as recipe `[options]` keys and values (see `job::recipe`),
+    /// plus the decode limits, for reports that let a run be repeated.
+    pub fn describe(&self) -> Vec<(&'static str, String)> {
+        let encoding = match self.input_encoding {
+            InputEncoding::Auto => "auto",
+            InputEncoding::Srgb => "srgb",
+            InputEncoding::Linear => "linear",
+        };
+        let depth = match self.sample {
+            None => "source",
+            Some(SampleType::U8) => "8",
+            Some(SampleType::U16) => "16",
+            Some(SampleType::F32) => "f32",
+        };
+        let chroma = match self.chroma {
+            Chroma::S444 => "444",
+            Chroma::S422 => "422",
+            Chroma::S420 => "420",
+        };
+        let domain = match self.domain {
+            DomainPolicy::Auto => "auto",
+            DomainPolicy::Linear => "linear",
+            DomainPolicy::Encoded => "encoded",
+        };
+        let [r, g, b] = self.background.map(|v| (v.clamp(0.0, 1.0) * 255.0).round() as u8);
+        vec![
+            ("input-encoding", encoding.into()),
+            ("depth", depth.into()),
+            ("meta", if self.keep_metadata { "keep" } else { "drop" }.into()),
+            ("format", self.format.and_then(Format::extension).unwrap_or("from-extension").into()),
+            ("quality", self.quality.to_string()),
+            ("chroma", chroma.into()),
+            ("domain", domain.into()),
+            ("background", format!("#{r:02x}{g:02x}{b:02x}")),
+            ("keep-orientation", self.keep_orientation.to_string()),
+            ("max-pixels", self.limits.max_pixels.to_string()),
+        ]
+    }
+}
+
 /// Option values a recipe or the command line may set; unset ones keep what
 /// was there (defaults, then recipe, then command line).
 #[derive(Clone, Debug, Default, PartialEq)]

@@ -3,6 +3,7 @@
 
 mod harness;
 
+mod batch;
 mod cli;
 mod cmyk;
 mod codecs;

@@ -1,5 +1,6 @@
 #!/usr/bin/env bash
-# Runs the three demo recipes on the three demo images.
+# Runs the demo recipes on the demo images: one file at a time, then the
+# whole folder as a batch (proof copies of every image, with a JSON report).
 #
 #   demo-images/run-demo.sh [OUTPUT-FOLDER]     (default: demo-output/)
 #
@@ -25,3 +26,6 @@ demo() {
 demo diatom-slide.tif micrograph.toml diatom-slide-clean.tif
 demo ledger-page.png ledger.toml ledger-page-clean.png
 demo harbour-photo.jpg photo.toml harbour-web.jpg
+
+pumice run "$here" -o "$out/proofs/" -r "$here/recipes/proofs.toml" --overwrite --report "$out/proofs/report.json"
+echo "demo-images/ -> $out/proofs/ (recipes/proofs.toml, report in $out/proofs/report.json)"

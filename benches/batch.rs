@@ -15,7 +15,8 @@ use std::time::Instant;
 use pumice::io::{self, EncodeOptions, Format};
 
 fn main() {
-    let files: usize = std::env::var("PUMICE_BENCH_BATCH_FILES").ok().and_then(|v| v.parse().ok()).unwrap_or(200);
+    let files: usize =
+        std::env::var("PUMICE_BENCH_BATCH_FILES").ok().and_then(|v| v.parse().ok()).unwrap_or(200);
     let dir = common::data_dir().join("batch");
     let input = dir.join("in");
     let _ = std::fs::remove_dir_all(&dir);
@@ -32,12 +33,23 @@ fn main() {
 
     let (ours_s, ours_peak) = run_pumice(&input, &dir.join("out-pumice"), &dir.join("report.json"));
     let reference = common::reference_times("reference_batch.py", &[&input, &dir.join("out-pillow")]);
-    println!("workload: {files} × 3000×2000 JPEG → resize width 1600 (lanczos3, linear light) + sharpen → JPEG q85");
+    println!(
+        "workload: {files} × 3000×2000 JPEG → resize width 1600 (lanczos3, linear light) + sharpen → JPEG q85"
+    );
     println!("{:<28} {:>10} {:>14}", "", "images/s", "peak memory");
-    println!("{:<28} {:>10.2} {:>10.0} MiB", "pumice run (-j 2)", files as f64 / ours_s, ours_peak / 1048576.0);
+    println!(
+        "{:<28} {:>10.2} {:>10.0} MiB",
+        "pumice run (-j 2)",
+        files as f64 / ours_s,
+        ours_peak / 1048576.0
+    );
     if let (Some(t), Some(peak)) = (reference.get("pillow.batch"), reference.get("pillow.batch_peak_mib")) {
         println!("{:<28} {:>10.2} {:>10.0} MiB", "Pillow, pool of 2", files as f64 / t, peak);
-        println!("ratio (Pillow time / ours): {:.2}×; memory ours / Pillow's: {:.2}", t / ours_s, ours_peak / 1048576.0 / peak);
+        println!(
+            "ratio (Pillow time / ours): {:.2}×; memory ours / Pillow's: {:.2}",
+            t / ours_s,
+            ours_peak / 1048576.0 / peak
+        );
     } else {
         println!("Pillow reference not run (see stderr)");
     }
@@ -52,7 +64,17 @@ fn run_pumice(input: &Path, output: &Path, report: &Path) -> (f64, f64) {
         .arg(input)
         .arg("-o")
         .arg(output)
-        .args(["-s", "resize:width=1600", "-s", "sharpen:amount=1,sigma=1", "--quality", "85", "-j", "2", "-q"])
+        .args([
+            "-s",
+            "resize:width=1600",
+            "-s",
+            "sharpen:amount=1,sigma=1",
+            "--quality",
+            "85",
+            "-j",
+            "2",
+            "-q",
+        ])
         .arg("--report")
         .arg(report)
         .status()

@@ -198,7 +198,8 @@ pub fn plan(
             continue;
         }
         let action = match (out.exists(), batch.existing) {
-            (false, _) => Action::Run { overwrite: false },
+            // With --overwrite, an output another process makes meanwhile is replaced too.
+            (false, e) => Action::Run { overwrite: e == Existing::Overwrite },
             (true, Existing::Overwrite) => Action::Run { overwrite: true },
             (true, Existing::Skip) => Action::Skip(SkipReason::Exists),
             (true, Existing::Update) => {

@@ -8,6 +8,7 @@ mod cli;
 mod cmyk;
 mod codecs;
 mod colour;
+mod faults;
 mod filters;
 mod hostile;
 mod orientation;

@@ -11,6 +11,7 @@ use rayon::prelude::*;
 
 use super::format::Format;
 use super::{exif, jpeg_markers};
+use crate::color::srgb;
 use crate::error::Error;
 use crate::ops::geometry::Move;
 use crate::raster::{Encoding, Layout, Metadata, Plane, Raster, Resolution, ResolutionUnit, SampleType};
@@ -102,6 +103,11 @@ pub struct DecodeOptions {
     pub encoding: InputEncoding,
     /// Leave pixels as stored and keep the EXIF orientation (default: make them upright).
     pub keep_orientation: bool,
+    /// Deliver sRGB-encoded sources as linear light (for a pipeline whose
+    /// first step works in linear light): the conversion happens while the
+    /// samples are split into planes, not as a pass of its own. The raster's
+    /// `metadata.source_encoding` still says how the file was encoded.
+    pub linear_light: bool,
 }
 
 /// Decodes one image (the first page or frame). The format comes from the bytes.
@@ -113,19 +119,35 @@ pub fn decode(bytes: &[u8], opts: &DecodeOptions) -> Result<Raster, Error> {
         ))
     })?;
     let decoded = catch_unwind(AssertUnwindSafe(|| match format {
-        Format::Png => decode_png(bytes, &opts.limits),
-        Format::Tiff => decode_tiff(bytes, &opts.limits),
-        Format::Jpeg => decode_jpeg(bytes, &opts.limits),
-        _ => decode_generic(bytes, format, &opts.limits),
+        Format::Png => decode_png(bytes, opts),
+        Format::Tiff => decode_tiff(bytes, opts),
+        Format::Jpeg => decode_jpeg(bytes, opts),
+        _ => decode_generic(bytes, format, opts),
     }))
     .map_err(|_| Error::Decode {
         format: format.name(),
         reason: "the decoder failed on malformed data".into(),
     })??;
     let Decoded { mut raster, sample, orientation } = decoded;
-    raster.encoding = opts.encoding.resolve(sample);
-    raster.levels = sample.max_code();
+    let file_encoding = opts.encoding.resolve(sample);
     raster.metadata.source_sample = Some(sample);
+    raster.metadata.source_encoding = Some(file_encoding);
+    let converted = raster.encoding == Encoding::Linear && file_encoding == Encoding::Srgb;
+    if converted {
+        raster.levels = None;
+    } else {
+        raster.encoding = file_encoding;
+        raster.levels = sample.max_code();
+        if opts.linear_light && file_encoding == Encoding::Srgb {
+            // Decoders that build their own planes (CMYK JPEG) and float data said to be sRGB.
+            let levels = raster.levels;
+            for p in raster.colour_planes_mut() {
+                srgb::decode_in_place(p.as_mut_slice(), levels);
+            }
+            raster.encoding = Encoding::Linear;
+            raster.levels = None;
+        }
+    }
     let stored =
         orientation.or_else(|| raster.metadata.exif.as_deref().and_then(exif::orientation)).unwrap_or(1);
     if opts.keep_orientation || stored == 1 {
@@ -179,9 +201,19 @@ enum Samples<'a> {
 }
 
 /// Splits interleaved samples into planes, mapping integer codes to `code / max`
-/// (a division, so `round(value · max)` gives the code back exactly). Rows are
-/// split in parallel.
-fn planar(width: usize, height: usize, layout: Layout, samples: Samples<'_>) -> Result<Raster, Error> {
+/// (a division, so `round(value · max)` gives the code back exactly) — or, when
+/// the options ask for linear light and the codes are sRGB-encoded, straight to
+/// linear light through the per-code table of `color::srgb` (alpha stays
+/// `code / max`), saving the separate conversion pass. Each plane is written
+/// once, in parallel, without being zeroed first. The raster's encoding says
+/// which of the two it holds.
+fn planar(
+    width: usize,
+    height: usize,
+    layout: Layout,
+    samples: Samples<'_>,
+    opts: &DecodeOptions,
+) -> Result<Raster, Error> {
     let n = layout.channels();
     let needed = width * height * n;
     let available = match &samples {
@@ -192,29 +224,36 @@ fn planar(width: usize, height: usize, layout: Layout, samples: Samples<'_>) -> 
     if available < needed {
         return Err(Error::Decode { format: "image", reason: "the decoder returned too few samples".into() });
     }
+    let sample = match &samples {
+        Samples::U8(_) => SampleType::U8,
+        Samples::U16(_) => SampleType::U16,
+        Samples::F32(_) => SampleType::F32,
+    };
+    let to_linear =
+        opts.linear_light && sample != SampleType::F32 && opts.encoding.resolve(sample) == Encoding::Srgb;
+    let colour = layout.colour_channels();
+    let divide_u8: Vec<f32> = (0..256).map(|v| v as f32 / 255.0).collect();
     let planes = (0..n)
         .map(|c| {
-            let mut plane = Plane::zeros(width, height)?;
-            plane.as_mut_slice().par_chunks_mut(width).enumerate().for_each(|(y, row)| {
-                let start = y * width * n + c;
-                match &samples {
-                    Samples::U8(s) => row
-                        .iter_mut()
-                        .zip(s[start..].iter().step_by(n))
-                        .for_each(|(o, &v)| *o = f32::from(v) / 255.0),
-                    Samples::U16(s) => row
-                        .iter_mut()
-                        .zip(s[start..].iter().step_by(n))
-                        .for_each(|(o, &v)| *o = f32::from(v) / 65535.0),
-                    Samples::F32(s) => {
-                        row.iter_mut().zip(s[start..].iter().step_by(n)).for_each(|(o, &v)| *o = v)
-                    }
+            let linear = to_linear && c < colour;
+            let data: Vec<f32> = match &samples {
+                Samples::U8(s) => {
+                    let table: &[f32] = if linear { srgb::decode_table_u8() } else { &divide_u8 };
+                    (0..width * height).into_par_iter().map(|i| table[usize::from(s[i * n + c])]).collect()
                 }
-            });
-            Ok(plane)
+                Samples::U16(s) if linear => {
+                    let table = srgb::decode_table_u16();
+                    (0..width * height).into_par_iter().map(|i| table[usize::from(s[i * n + c])]).collect()
+                }
+                Samples::U16(s) => {
+                    (0..width * height).into_par_iter().map(|i| f32::from(s[i * n + c]) / 65535.0).collect()
+                }
+                Samples::F32(s) => (0..width * height).into_par_iter().map(|i| s[i * n + c]).collect(),
+            };
+            Plane::from_vec(width, height, data)
         })
         .collect::<Result<Vec<_>, Error>>()?;
-    Raster::new(planes, layout, Encoding::Srgb)
+    Raster::new(planes, layout, if to_linear { Encoding::Linear } else { Encoding::Srgb })
 }
 
 fn layout_for(channels: usize) -> Option<Layout> {
@@ -234,7 +273,8 @@ fn png_error(e: png::DecodingError) -> Error {
     }
 }
 
-fn decode_png(bytes: &[u8], limits: &Limits) -> Result<Decoded, Error> {
+fn decode_png(bytes: &[u8], opts: &DecodeOptions) -> Result<Decoded, Error> {
+    let limits = &opts.limits;
     let png_limits = png::Limits { bytes: usize::try_from(limits.max_bytes).unwrap_or(usize::MAX) };
     let mut decoder = png::Decoder::new_with_limits(Cursor::new(bytes), png_limits);
     // Palettes and bit depths below 8 expand to 8-bit; tRNS becomes alpha; 16-bit stays 16-bit.
@@ -263,7 +303,7 @@ fn decode_png(bytes: &[u8], limits: &Limits) -> Result<Decoded, Error> {
         ),
         _ => (Samples::U8(&buf), SampleType::U8),
     };
-    let mut raster = planar(width, height, layout, samples)?;
+    let mut raster = planar(width, height, layout, samples, opts)?;
     let info = reader.info();
     raster.metadata = Metadata {
         icc_profile: info.icc_profile.as_ref().map(|c| c.to_vec()),
@@ -292,7 +332,8 @@ fn tiff_error(e: tiff::TiffError) -> Error {
     }
 }
 
-fn decode_tiff(bytes: &[u8], limits: &Limits) -> Result<Decoded, Error> {
+fn decode_tiff(bytes: &[u8], opts: &DecodeOptions) -> Result<Decoded, Error> {
+    let limits = &opts.limits;
     use tiff::ColorType as C;
     use tiff::decoder::{DecodingResult, Limits as TiffLimits};
     use tiff::tags::Tag;
@@ -336,9 +377,9 @@ fn decode_tiff(bytes: &[u8], limits: &Limits) -> Result<Decoded, Error> {
     let (width, height) = (w as usize, h as usize);
     let result = d.read_image().map_err(tiff_error)?;
     let (mut raster, sample) = match result {
-        DecodingResult::U8(s) => (planar(width, height, layout, Samples::U8(&s))?, SampleType::U8),
-        DecodingResult::U16(s) => (planar(width, height, layout, Samples::U16(s))?, SampleType::U16),
-        DecodingResult::F32(s) => (planar(width, height, layout, Samples::F32(&s))?, SampleType::F32),
+        DecodingResult::U8(s) => (planar(width, height, layout, Samples::U8(&s), opts)?, SampleType::U8),
+        DecodingResult::U16(s) => (planar(width, height, layout, Samples::U16(s), opts)?, SampleType::U16),
+        DecodingResult::F32(s) => (planar(width, height, layout, Samples::F32(&s), opts)?, SampleType::F32),
         _ => {
             return Err(Error::Unsupported(format!(
                 "TIFF with {} bits per sample of this type; Pumice reads 8- and 16-bit unsigned and 32-bit float",
@@ -381,7 +422,8 @@ fn image_error(format: Format, e: image::ImageError) -> Error {
     }
 }
 
-fn decode_generic(bytes: &[u8], format: Format, limits: &Limits) -> Result<Decoded, Error> {
+fn decode_generic(bytes: &[u8], format: Format, opts: &DecodeOptions) -> Result<Decoded, Error> {
+    let limits = &opts.limits;
     let image_format = match format {
         Format::Jpeg => image::ImageFormat::Jpeg,
         Format::Webp => image::ImageFormat::WebP,
@@ -406,26 +448,26 @@ fn decode_generic(bytes: &[u8], format: Format, limits: &Limits) -> Result<Decod
     let (width, height) = (w as usize, h as usize);
     let (raster, sample) = match img {
         DynamicImage::ImageLuma8(b) => {
-            (planar(width, height, Layout::Gray, Samples::U8(b.as_raw()))?, SampleType::U8)
+            (planar(width, height, Layout::Gray, Samples::U8(b.as_raw()), opts)?, SampleType::U8)
         }
         DynamicImage::ImageLumaA8(b) => {
-            (planar(width, height, Layout::GrayAlpha, Samples::U8(b.as_raw()))?, SampleType::U8)
+            (planar(width, height, Layout::GrayAlpha, Samples::U8(b.as_raw()), opts)?, SampleType::U8)
         }
         DynamicImage::ImageRgb8(b) => {
-            (planar(width, height, Layout::Rgb, Samples::U8(b.as_raw()))?, SampleType::U8)
+            (planar(width, height, Layout::Rgb, Samples::U8(b.as_raw()), opts)?, SampleType::U8)
         }
         DynamicImage::ImageRgba8(b) => {
-            (planar(width, height, Layout::Rgba, Samples::U8(b.as_raw()))?, SampleType::U8)
+            (planar(width, height, Layout::Rgba, Samples::U8(b.as_raw()), opts)?, SampleType::U8)
         }
         DynamicImage::ImageRgb32F(b) => {
-            (planar(width, height, Layout::Rgb, Samples::F32(b.as_raw()))?, SampleType::F32)
+            (planar(width, height, Layout::Rgb, Samples::F32(b.as_raw()), opts)?, SampleType::F32)
         }
         DynamicImage::ImageRgba32F(b) => {
-            (planar(width, height, Layout::Rgba, Samples::F32(b.as_raw()))?, SampleType::F32)
+            (planar(width, height, Layout::Rgba, Samples::F32(b.as_raw()), opts)?, SampleType::F32)
         }
         other => {
             let b = other.into_rgba32f();
-            (planar(width, height, Layout::Rgba, Samples::F32(b.as_raw()))?, SampleType::F32)
+            (planar(width, height, Layout::Rgba, Samples::F32(b.as_raw()), opts)?, SampleType::F32)
         }
     };
     let mut raster = raster;
@@ -436,12 +478,13 @@ fn decode_generic(bytes: &[u8], format: Format, limits: &Limits) -> Result<Decod
 
 /// JPEG: four-component (CMYK, YCCK) files take their own path; the rest go
 /// through the `image` crate.
-fn decode_jpeg(bytes: &[u8], limits: &Limits) -> Result<Decoded, Error> {
+fn decode_jpeg(bytes: &[u8], opts: &DecodeOptions) -> Result<Decoded, Error> {
+    let limits = &opts.limits;
     let headers = jpeg_markers::read(bytes);
     if headers.components == Some(4) {
         decode_cmyk_jpeg(bytes, &headers, limits)
     } else {
-        decode_generic(bytes, Format::Jpeg, limits)
+        decode_generic(bytes, Format::Jpeg, opts)
     }
 }
 

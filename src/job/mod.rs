@@ -167,12 +167,13 @@ impl<'a> Job<'a> {
             limits: o.limits,
             encoding: o.input_encoding,
             keep_orientation: o.keep_orientation,
+            linear_light: self.pipeline.first_encoding(o.domain) == Some(crate::raster::Encoding::Linear),
         };
         let input_sha256 = sha256_hex(&bytes);
         check(Stage::Decode)?;
         let raster = codec::decode(&bytes, &decode_opts).map_err(at(Stage::Decode))?;
         drop(bytes);
-        let file_encoding = raster.encoding;
+        let file_encoding = raster.metadata.source_encoding.unwrap_or(raster.encoding);
         let input_size = (raster.width(), raster.height());
         let input_layout = raster.layout();
         let input_sample = raster.metadata.source_sample.unwrap_or(SampleType::F32);

@@ -75,6 +75,12 @@ pub struct StepFailure {
 }
 
 impl Pipeline {
+    /// The encoding the first step that is not [`Domain::Any`] works in, under
+    /// `policy`: what a decoder may deliver at once instead of converting later.
+    pub fn first_encoding(&self, policy: DomainPolicy) -> Option<Encoding> {
+        self.steps.iter().find_map(|s| policy.encoding_for(s.op.domain()))
+    }
+
     /// Runs every step on `raster`, in order.
     pub fn run(&self, raster: Raster, policy: DomainPolicy) -> Result<Raster, StepFailure> {
         let mut raster = raster;

@@ -205,6 +205,9 @@ pub struct Metadata {
     pub resolution: Option<Resolution>,
     /// The sample type the source file stored, if it came from a file.
     pub source_sample: Option<SampleType>,
+    /// How the source file's values were encoded (outputs are written the same
+    /// way), if it came from a file; the planes may have been decoded to linear light.
+    pub source_encoding: Option<Encoding>,
     /// Measurements steps made while running (a skew angle, a count of
     /// repaired pixels), in the order they were made, for `-v` and the run report.
     pub notes: Vec<Note>,

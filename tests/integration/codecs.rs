@@ -109,6 +109,7 @@ fn metadata_is_carried_to_png_tiff_and_jpeg() {
         // REFERENCES.md [K8]: 300 dpi = 11811.02 px/m; PNG stores the integer 11811.
         resolution: Some(Resolution { x: 300.0, y: 300.0, unit: ResolutionUnit::Inch }),
         source_sample: Some(SampleType::U8),
+        source_encoding: None,
         notes: Vec::new(),
     };
     for format in [Format::Png, Format::Tiff, Format::Jpeg, Format::Webp] {
@@ -174,4 +175,29 @@ fn alpha_is_flattened_onto_the_background_in_linear_light() {
     assert_eq!(back.layout(), Layout::Gray);
     let code = (back.planes()[0].get(0, 0) * 255.0).round();
     assert!((code - 188.0).abs() <= 1.0, "got code {code}; JPEG at q100 may move a flat patch by 1");
+}
+
+#[test]
+fn decoding_straight_to_linear_light_equals_converting_afterwards() {
+    for (layout, max, format) in [
+        (Layout::Rgba, 255, Format::Png),
+        (Layout::GrayAlpha, 65535, Format::Png),
+        (Layout::Rgb, 65535, Format::Tiff),
+        (Layout::Rgb, 255, Format::Webp),
+    ] {
+        let bytes = io::encode(&all_codes(layout, max), &EncodeOptions::new(format)).unwrap();
+        let direct =
+            io::decode(&bytes, &DecodeOptions { linear_light: true, ..DecodeOptions::default() }).unwrap();
+        let mut after = io::decode(&bytes, &DecodeOptions::default()).unwrap();
+        let levels = after.levels;
+        assert_eq!(levels, Some(max));
+        for p in after.colour_planes_mut() {
+            pumice::color::srgb::decode_in_place(p.as_mut_slice(), levels);
+        }
+        assert_eq!(direct.encoding, Encoding::Linear);
+        assert_eq!(direct.metadata.source_encoding, Some(Encoding::Srgb));
+        assert_eq!(direct.levels, None);
+        // Bit for bit, alpha included (alpha stays code / max).
+        assert_eq!(direct.planes(), after.planes(), "{format:?} {}", layout.name());
+    }
 }

@@ -7,7 +7,7 @@ use std::fs;
 use std::path::Path;
 use std::process::{Command, Stdio};
 
-use crate::harness::{Scratch, pumice};
+use crate::harness::Scratch;
 
 /// An 8-bit RGB PNG of `w × h` noise (it does not compress, so its size is about 3·w·h).
 fn noisy_png(w: u32, h: u32, seed: u32) -> Vec<u8> {

@@ -6,6 +6,8 @@
 //! ([`io::encode`]). [`job`] ties these together for one input and one output;
 //! everything the command line does is callable from here.
 
+#![cfg_attr(not(test), deny(clippy::unwrap_used, clippy::expect_used))]
+
 pub mod batch;
 pub mod color;
 pub mod error;

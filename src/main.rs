@@ -1,6 +1,8 @@
 //! The `pumice` binary: parses arguments, calls the library, maps results to
 //! exit codes. All image work lives in the library.
 
+#![deny(clippy::unwrap_used, clippy::expect_used)]
+
 mod cli;
 
 fn main() -> std::process::ExitCode {

@@ -132,6 +132,10 @@ pub struct RunArgs {
     #[arg(long, value_parser = PossibleValuesParser::new(DomainPolicy::NAMES))]
     pub domain: Option<String>,
 
+    /// Calibration: the side of one pixel, e.g. 0.65um (nm, um, mm, cm, in); replaces the file's resolution and is scaled by resize
+    #[arg(long, value_name = "SIZE")]
+    pub pixel_size: Option<String>,
+
     /// Refuse images with more pixels than this [default: 268435456]
     #[arg(long, value_name = "N")]
     pub max_pixels: Option<u64>,
@@ -165,6 +169,7 @@ impl RunArgs {
             chroma: self.chroma.as_deref().map(str::parse).transpose()?,
             domain: self.domain.as_deref().map(str::parse).transpose()?,
             background: self.background.as_deref().map(options::parse_colour).transpose()?,
+            pixel_size: self.pixel_size.as_deref().map(options::parse_pixel_size).transpose()?,
         })
     }
 }

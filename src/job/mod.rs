@@ -171,8 +171,11 @@ impl<'a> Job<'a> {
         };
         let input_sha256 = sha256_hex(&bytes);
         check(Stage::Decode)?;
-        let raster = codec::decode(&bytes, &decode_opts).map_err(at(Stage::Decode))?;
+        let mut raster = codec::decode(&bytes, &decode_opts).map_err(at(Stage::Decode))?;
         drop(bytes);
+        if let Some(size) = o.pixel_size {
+            raster.metadata.resolution = Some(size.resolution());
+        }
         let file_encoding = raster.metadata.source_encoding.unwrap_or(raster.encoding);
         let input_size = (raster.width(), raster.height());
         let input_layout = raster.layout();

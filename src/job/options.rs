@@ -3,7 +3,7 @@
 
 use crate::io::{Chroma, Format, InputEncoding, Limits};
 use crate::pipeline::DomainPolicy;
-use crate::raster::SampleType;
+use crate::raster::{Resolution, ResolutionUnit, SampleType};
 
 /// Everything about a run except its steps.
 #[derive(Clone, Debug, PartialEq)]
@@ -20,6 +20,8 @@ pub struct RunOptions {
     /// sRGB-encoded colour that alpha is flattened onto for formats without alpha.
     pub background: [f32; 3],
     pub keep_orientation: bool,
+    /// Calibration that replaces the file's resolution (`--pixel-size`).
+    pub pixel_size: Option<PixelSize>,
     pub limits: Limits,
 }
 
@@ -35,6 +37,7 @@ impl Default for RunOptions {
             domain: DomainPolicy::Auto,
             background: [1.0, 1.0, 1.0],
             keep_orientation: false,
+            pixel_size: None,
             limits: Limits::DEFAULT,
         }
     }
@@ -76,6 +79,7 @@ impl RunOptions {
             ("domain", domain.into()),
             ("background", format!("#{r:02x}{g:02x}{b:02x}")),
             ("keep-orientation", self.keep_orientation.to_string()),
+            ("pixel-size", self.pixel_size.map_or_else(|| "from-file".into(), |p| p.to_string())),
             ("max-pixels", self.limits.max_pixels.to_string()),
         ]
     }
@@ -93,6 +97,7 @@ pub struct OptionOverrides {
     pub chroma: Option<Chroma>,
     pub domain: Option<DomainPolicy>,
     pub background: Option<[f32; 3]>,
+    pub pixel_size: Option<PixelSize>,
 }
 
 impl OptionOverrides {
@@ -121,6 +126,9 @@ impl OptionOverrides {
         }
         if let Some(v) = self.background {
             options.background = v;
+        }
+        if let Some(v) = self.pixel_size {
+            options.pixel_size = Some(v);
         }
     }
 }
@@ -161,6 +169,95 @@ pub fn parse_format(s: &str) -> Result<Format, String> {
 
 pub use crate::color::parse_colour;
 
+/// The side of one (square) pixel in the object, as a calibration: `0.65um`.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct PixelSize {
+    /// The size in `unit`.
+    pub value: f64,
+    pub unit: LengthUnit,
+}
+
+/// Units a pixel size may be given in.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum LengthUnit {
+    Nanometre,
+    Micrometre,
+    Millimetre,
+    Centimetre,
+    Inch,
+}
+
+impl LengthUnit {
+    /// The unit's symbol as `--pixel-size` takes it.
+    pub fn symbol(self) -> &'static str {
+        match self {
+            LengthUnit::Nanometre => "nm",
+            LengthUnit::Micrometre => "um",
+            LengthUnit::Millimetre => "mm",
+            LengthUnit::Centimetre => "cm",
+            LengthUnit::Inch => "in",
+        }
+    }
+
+    /// Centimetres per unit (SI prefixes; 1 in = 2.54 cm exactly, 1959 agreement).
+    fn in_cm(self) -> f64 {
+        match self {
+            LengthUnit::Nanometre => 1e-7,
+            LengthUnit::Micrometre => 1e-4,
+            LengthUnit::Millimetre => 0.1,
+            LengthUnit::Centimetre => 1.0,
+            LengthUnit::Inch => 2.54,
+        }
+    }
+}
+
+impl PixelSize {
+    /// The resolution metadata it stands for: pixels per inch for a size in
+    /// inches, else pixels per centimetre (the unit TIFF and PNG can store).
+    pub fn resolution(self) -> Resolution {
+        match self.unit {
+            LengthUnit::Inch => {
+                Resolution { x: 1.0 / self.value, y: 1.0 / self.value, unit: ResolutionUnit::Inch }
+            }
+            u => {
+                let per_cm = 1.0 / (self.value * u.in_cm());
+                Resolution { x: per_cm, y: per_cm, unit: ResolutionUnit::Centimetre }
+            }
+        }
+    }
+}
+
+impl std::fmt::Display for PixelSize {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "{}{}", self.value, self.unit.symbol())
+    }
+}
+
+/// Parses a pixel size: a positive number and a unit, `nm`, `um` (or `µm`),
+/// `mm`, `cm` or `in`, e.g. `0.65um`.
+pub fn parse_pixel_size(s: &str) -> Result<PixelSize, String> {
+    let t = s.trim();
+    let split =
+        t.find(|c: char| !(c.is_ascii_digit() || c == '.' || c == 'e' || c == 'E' || c == '-' || c == '+'));
+    let bad = || {
+        format!("pixel size `{s}`: expected a positive number and a unit (nm, um, mm, cm, in), e.g. 0.65um")
+    };
+    let (number, unit) = t.split_at(split.ok_or_else(bad)?);
+    let value: f64 = number.parse().map_err(|_| bad())?;
+    let unit = match unit.trim() {
+        "nm" => LengthUnit::Nanometre,
+        "um" | "µm" | "μm" => LengthUnit::Micrometre,
+        "mm" => LengthUnit::Millimetre,
+        "cm" => LengthUnit::Centimetre,
+        "in" => LengthUnit::Inch,
+        _ => return Err(bad()),
+    };
+    if !(value.is_finite() && value > 0.0) {
+        return Err(bad());
+    }
+    Ok(PixelSize { value, unit })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -172,5 +269,13 @@ mod tests {
         assert_eq!(parse_format("tif"), Ok(Format::Tiff));
         assert!(parse_format("gif").is_err());
         assert_eq!(parse_meta("drop"), Ok(false));
+        let p = parse_pixel_size("0.65um").unwrap();
+        // 0.65 µm = 6.5e-5 cm, so 1 / 6.5e-5 = 15384.6 pixels per cm.
+        assert!((p.resolution().x - 15384.615).abs() < 1e-3);
+        assert_eq!(parse_pixel_size("2 µm").unwrap().unit, LengthUnit::Micrometre);
+        assert_eq!(parse_pixel_size("0.01in").unwrap().resolution().x.round(), 100.0);
+        for bad in ["0.65", "um", "-1um", "0um", "3 furlongs"] {
+            assert!(parse_pixel_size(bad).is_err(), "{bad}");
+        }
     }
 }

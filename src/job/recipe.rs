@@ -6,6 +6,7 @@
 //! input-encoding = "linear"   # auto | srgb | linear
 //! depth = "16"                # source | 8 | 16 | f32
 //! meta = "keep"               # keep | drop
+//! pixel-size = "0.65um"       # calibration: nm | um | mm | cm | in
 //!
 //! [[step]]
 //! op = "gauss"
@@ -28,8 +29,8 @@ pub struct Recipe {
     pub pipeline: Pipeline,
 }
 
-const OPTION_KEYS: [&str; 8] =
-    ["input-encoding", "depth", "meta", "format", "quality", "chroma", "domain", "background"];
+const OPTION_KEYS: [&str; 9] =
+    ["input-encoding", "depth", "meta", "format", "quality", "chroma", "domain", "background", "pixel-size"];
 
 /// Parses and checks a recipe; `origin` names it in errors.
 pub fn parse(text: &str, origin: &str) -> Result<Recipe, Error> {
@@ -77,6 +78,7 @@ fn read_options(t: &toml::Table, o: &mut OptionOverrides) -> Result<(), String> 
             "chroma" => o.chroma = Some(text()?.parse()?),
             "domain" => o.domain = Some(text()?.parse()?),
             "background" => o.background = Some(options::parse_colour(text()?)?),
+            "pixel-size" => o.pixel_size = Some(options::parse_pixel_size(text()?)?),
             "quality" => {
                 let q = value.as_integer().filter(|q| (1..=100).contains(q)).ok_or_else(|| {
                     format!("option `quality` must be a whole number from 1 to 100, got {value}")

@@ -9,6 +9,7 @@ mod cmyk;
 mod codecs;
 mod colour;
 mod faults;
+mod fidelity;
 mod filters;
 mod hostile;
 mod orientation;

@@ -11,6 +11,7 @@
 pub mod batch;
 pub mod color;
 pub mod error;
+pub mod fuzzing;
 pub mod io;
 pub mod job;
 pub mod ops;

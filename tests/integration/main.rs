@@ -11,6 +11,7 @@ mod colour;
 mod faults;
 mod fidelity;
 mod filters;
+mod fuzz_corpus;
 mod hostile;
 mod orientation;
 mod reference;

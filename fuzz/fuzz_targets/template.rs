@@ -1,0 +1,10 @@
+//! Any text as a batch output-name template.
+#![no_main]
+
+use libfuzzer_sys::fuzz_target;
+
+fuzz_target!(|data: &[u8]| {
+    if let Ok(text) = std::str::from_utf8(data) {
+        pumice::fuzzing::template(text);
+    }
+});

@@ -10,6 +10,7 @@ pub mod color;
 pub mod error;
 pub mod io;
 pub mod job;
+pub mod measure;
 pub mod ops;
 pub mod pipeline;
 pub mod raster;

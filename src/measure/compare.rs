@@ -15,8 +15,6 @@ pub enum CompareError {
     Size { a_width: usize, a_height: usize, b_width: usize, b_height: usize },
     #[error("the images differ in layout: {a} and {b}")]
     Layout { a: &'static str, b: &'static str },
-    #[error("SSIM needs images of at least {min}×{min} pixels (its window), got {width}×{height}")]
-    TooSmall { width: usize, height: usize, min: usize },
 }
 
 /// The largest absolute difference of one sample and where it is.
@@ -38,8 +36,9 @@ pub struct Comparison {
     pub psnr: f64,
     /// PSNR of each plane, dB.
     pub psnr_per_channel: Vec<f64>,
-    /// Mean SSIM on BT.709 luma, or the mean over planes with `per_channel`.
-    pub ssim: f64,
+    /// Mean SSIM on BT.709 luma, or the mean over planes with `per_channel`;
+    /// `None` for images smaller than the SSIM window (11×11).
+    pub ssim: Option<f64>,
     /// SSIM of each plane when asked for (`per_channel`), else empty.
     pub ssim_per_channel: Vec<f64>,
     pub largest: Largest,
@@ -75,19 +74,20 @@ pub fn check_comparable(a: &Raster, b: &Raster) -> Result<(), CompareError> {
 /// data_range=full scale)` (scikit-image 0.26.0). SSIM is [`ssim`] on the
 /// BT.709 luma `0.2126 R + 0.7152 G + 0.0722 B` of the values as stored
 /// (encoded, not linear light: SSIM models perceived structure), or on each
-/// plane with `per_channel` (alpha included) and their mean.
+/// plane with `per_channel` (alpha included) and their mean; images smaller
+/// than 11×11 get no SSIM (scikit-image refuses them too).
 pub fn compare(a: &Raster, b: &Raster, per_channel: bool) -> Result<Comparison, CompareError> {
     check_comparable(a, b)?;
     let (w, h) = (a.width(), a.height());
-    if w < SSIM_WINDOW || h < SSIM_WINDOW {
-        return Err(CompareError::TooSmall { width: w, height: h, min: SSIM_WINDOW });
-    }
     let errors: Vec<f64> = a.planes().iter().zip(b.planes()).map(|(p, q)| squared_error(p, q)).collect();
     let n = (w * h) as f64;
     let mse = errors.iter().sum::<f64>() / (n * errors.len() as f64);
     let (ssim, ssim_per_channel) = if per_channel {
-        let each: Vec<f64> = a.planes().iter().zip(b.planes()).map(|(p, q)| ssim(p, q)).collect();
-        (each.iter().sum::<f64>() / each.len() as f64, each)
+        let each: Option<Vec<f64>> = a.planes().iter().zip(b.planes()).map(|(p, q)| ssim(p, q)).collect();
+        match each {
+            Some(each) => (Some(each.iter().sum::<f64>() / each.len() as f64), each),
+            None => (None, Vec::new()),
+        }
     } else {
         (ssim(&luma(a), &luma(b)), Vec::new())
     };
@@ -191,7 +191,7 @@ fn ssim_weights() -> [f64; SSIM_WINDOW] {
     w.map(|v| v / sum)
 }
 
-/// Mean structural similarity of two planes (at least 11×11) with data range L = 1:
+/// Mean structural similarity of two planes of the same size with data range L = 1:
 ///
 /// ```text
 /// μx = G∗x, μy = G∗y, σx² = G∗x² − μx², σy² = G∗y² − μy², σxy = G∗xy − μx·μy
@@ -210,9 +210,13 @@ fn ssim_weights() -> [f64; SSIM_WINDOW] {
 /// `reflect` and then averages only pixels `(win − 1)/2 = 5` or more from the
 /// edges: every window of those lies inside the image, so no border rule is
 /// involved and only they are computed here. All arithmetic in f64; rows in
-/// parallel, summed in row order (independent of the thread count).
-pub fn ssim(a: &Plane, b: &Plane) -> f64 {
+/// parallel, summed in row order (independent of the thread count). `None`
+/// when the planes differ in size or either side is under 11 pixels.
+pub fn ssim(a: &Plane, b: &Plane) -> Option<f64> {
     let (w, h) = (a.width(), a.height());
+    if (w, h) != (b.width(), b.height()) || w < SSIM_WINDOW || h < SSIM_WINDOW {
+        return None;
+    }
     let g = ssim_weights();
     let (c1, c2) = (K1 * K1, K2 * K2);
     let r = SSIM_RADIUS;
@@ -249,13 +253,13 @@ pub fn ssim(a: &Plane, b: &Plane) -> f64 {
             sum
         })
         .collect();
-    row_sums.iter().sum::<f64>() / ((w - 2 * r) * (h - 2 * r)) as f64
+    Some(row_sums.iter().sum::<f64>() / ((w - 2 * r) * (h - 2 * r)) as f64)
 }
 
 #[cfg(test)]
 mod tests {
     //! Edge cases: identical images (PSNR +∞, SSIM 1), an 11×11 image (one
-    //! SSIM window), 10×N (too small), size and layout mismatch, NaN samples,
+    //! SSIM window), 10×N (too small for SSIM), size and layout mismatch, NaN samples,
     //! ties for the largest difference.
     use super::*;
     use crate::raster::{Encoding, Layout};
@@ -269,7 +273,7 @@ mod tests {
         let a = gray(16, 12, |x, y| ((x * y) % 7) as f32 / 7.0);
         let c = compare(&a, &a, false).unwrap();
         assert_eq!(c.psnr, f64::INFINITY);
-        assert!((c.ssim - 1.0).abs() < 1e-12);
+        assert!((c.ssim.unwrap() - 1.0).abs() < 1e-12);
         assert_eq!(c.differing_pixels, 0);
         assert_eq!(c.largest.value, 0.0);
     }
@@ -301,7 +305,8 @@ mod tests {
         let (vx, vy, vxy) = (m[2] - m[0] * m[0], m[3] - m[1] * m[1], m[4] - m[0] * m[1]);
         let expect = (2.0 * m[0] * m[1] + 1e-4) * (2.0 * vxy + 9e-4)
             / ((m[0] * m[0] + m[1] * m[1] + 1e-4) * (vx + vy + 9e-4));
-        assert!((ssim(pa, pb) - expect).abs() < 1e-12);
+        assert!((ssim(pa, pb).unwrap() - expect).abs() < 1e-12);
+        assert_eq!(ssim(pa, &Plane::zeros(11, 10).unwrap()), None);
         assert!((g.iter().sum::<f64>() - 1.0).abs() < 1e-15);
     }
 
@@ -312,7 +317,8 @@ mod tests {
         let rgb = Raster::new(vec![Plane::zeros(12, 12).unwrap(); 3], Layout::Rgb, Encoding::Srgb).unwrap();
         assert!(matches!(compare(&a, &rgb, false), Err(CompareError::Layout { .. })));
         let small = gray(10, 30, |_, _| 0.0);
-        assert!(matches!(compare(&small, &small, false), Err(CompareError::TooSmall { .. })));
+        let c = compare(&small, &small, false).unwrap();
+        assert_eq!((c.ssim, c.psnr), (None, f64::INFINITY));
     }
 
     #[test]

@@ -129,11 +129,12 @@ const INK: Rgb = [0, 0, 0];
 const GRID: Rgb = [225, 225, 225];
 
 /// A histogram plot, 800×500: one polyline per series through the bin
-/// centres (height ∝ count, linear from 0 to the largest count of any
-/// series), x axis from `x_range.0` to `x_range.1` labelled `x_label` with
-/// five evenly spaced ticks, y axis labelled `count` with ticks at a round
-/// step (1, 2 or 5 × 10ᵏ), light grid lines and a legend in the top right.
-pub fn histogram_plot(series: &[Series], x_range: (f64, f64), x_label: &str) -> Canvas {
+/// centres (the bins split `x_range` evenly; height ∝ count, linear from 0 to
+/// the largest count of any series), x axis labelled `x_label` with a tick
+/// and label at each of `x_ticks` (values inside `x_range`), y axis labelled
+/// `count` with ticks at a round step (1, 2 or 5 × 10ᵏ), light grid lines and
+/// a legend in the top right.
+pub fn histogram_plot(series: &[Series], x_range: (f64, f64), x_ticks: &[f64], x_label: &str) -> Canvas {
     let mut c = Canvas::new(PLOT_WIDTH, PLOT_HEIGHT, [255, 255, 255]);
     let (x0, x1) = (LEFT, PLOT_WIDTH as i64 - RIGHT);
     let (y0, y1) = (TOP, PLOT_HEIGHT as i64 - BOTTOM);
@@ -154,12 +155,13 @@ pub fn histogram_plot(series: &[Series], x_range: (f64, f64), x_label: &str) -> 
         v += step;
     }
     // x ticks.
-    for i in 0..=4 {
-        let t = i as f64 / 4.0;
+    let span = if x_range.1 > x_range.0 { x_range.1 - x_range.0 } else { 1.0 };
+    for &v in x_ticks {
+        let t = (v - x_range.0) / span;
         let x = x0 + (t * (x1 - x0) as f64).round() as i64;
         c.line((x, y0), (x, y1), 1, GRID);
         c.line((x, y1), (x, y1 + 6), 1, INK);
-        let label = value_label(x_range.0 + t * (x_range.1 - x_range.0));
+        let label = value_label(v);
         c.text(x - text_w(&label) / 2, y1 + 12, &label, SCALE, INK);
     }
     // Axes and their labels.
@@ -306,7 +308,7 @@ mod tests {
             Series { name: "r".into(), colour: channel_colour("r"), counts: vec![0, 10, 40, 10, 0] },
             Series { name: "g".into(), colour: channel_colour("g"), counts: vec![5; 5] },
         ];
-        let c = histogram_plot(&series, (0.0, 255.0), "code");
+        let c = histogram_plot(&series, (-0.5, 255.5), &[0.0, 128.0, 255.0], "code");
         assert_eq!((c.width, c.height, c.pixels.len()), (800, 500, 800 * 500 * 3));
         let count = |col: Rgb| {
             (0..c.height)

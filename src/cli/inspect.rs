@@ -117,7 +117,7 @@ fn inspect(path: &Path) -> Result<Inspection, String> {
     let sample = raster.metadata.source_sample.unwrap_or(SampleType::F32);
     let levels = raster.levels;
     let per_channel: Vec<(ChannelStats, Option<f64>)> =
-        raster.planes().iter().map(|p| (channel_stats(p, levels), noise_sigma(p))).collect();
+        raster.planes().iter().map(|p| (channel_stats(p, levels), noise_sigma(p, levels))).collect();
     let range = if sample.max_code().is_some() {
         (0.0, 1.0)
     } else {

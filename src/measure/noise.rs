@@ -32,35 +32,43 @@ const NORMAL_Q75: f64 = 0.6744897501960817;
 /// coefficients are left out as `skimage.restoration.estimate_sigma`
 /// (scikit-image 0.26.0) does, so flat regions do not pull the median to zero.
 /// The estimate assumes white Gaussian noise and overestimates on images with
-/// much fine texture. Computed in f64; `None` when no coefficient is non-zero
+/// much fine texture. Computed in f64 with PyWavelets' operation order (along
+/// columns first, then rows; taps in order); with `levels = Some(n)` (exact
+/// codes) the samples are taken as `code / n` in f64, so the result equals
+/// the float64 reference bit for bit. `None` when no coefficient is non-zero
 /// (a plane of zeros) or a sample is not finite.
-pub fn noise_sigma(plane: &Plane) -> Option<f64> {
+pub fn noise_sigma(plane: &Plane, levels: Option<u32>) -> Option<f64> {
     let (w, h) = (plane.width(), plane.height());
     if plane.as_slice().iter().any(|v| !v.is_finite()) {
         return None;
     }
-    let (ow, oh) = ((w + 3) / 2, (h + 3) / 2);
-    // Row `y` high-passed and downsampled along x.
-    let high_row = |y: usize, out: &mut [f64]| {
-        let row = plane.row(y);
-        for (o, slot) in out.iter_mut().enumerate() {
-            *slot = DB2_HIGH
-                .iter()
-                .enumerate()
-                .map(|(j, &c)| c * f64::from(row[symmetric(2 * o + 1, j, w)]))
-                .sum();
-        }
+    // Exact codes are read back as code / n in f64, the value a float64
+    // reference sees, so near-zero coefficients come out the same.
+    let n = levels.filter(|&n| (1..=65535).contains(&n)).map(f64::from);
+    let value = |v: f32| match n {
+        Some(n) => (f64::from(v) * n).round() / n,
+        None => f64::from(v),
     };
+    let (ow, oh) = ((w + 3) / 2, (h + 3) / 2);
+    // Columns first, then rows (pywt.dwtn's axis order), each sum in tap order.
     let mut magnitudes: Vec<f64> = (0..oh)
         .into_par_iter()
         .flat_map_iter(|oy| {
-            let mut acc = vec![0.0f64; ow];
-            let mut tmp = vec![0.0f64; ow];
+            let mut column_pass = vec![0.0f64; w];
             for (j, &c) in DB2_HIGH.iter().enumerate() {
-                high_row(symmetric(2 * oy + 1, j, h), &mut tmp);
-                acc.iter_mut().zip(&tmp).for_each(|(a, t)| *a += c * t);
+                let row = plane.row(symmetric(2 * oy + 1, j, h));
+                column_pass.iter_mut().zip(row).for_each(|(a, &v)| *a += c * value(v));
             }
-            acc.into_iter().filter(|&d| d != 0.0).map(f64::abs)
+            (0..ow)
+                .map(move |ox| {
+                    let mut d = 0.0f64;
+                    for (j, &c) in DB2_HIGH.iter().enumerate() {
+                        d += c * column_pass[symmetric(2 * ox + 1, j, w)];
+                    }
+                    d
+                })
+                .filter(|&d| d != 0.0)
+                .map(f64::abs)
         })
         .collect();
     median(&mut magnitudes).map(|m| m / NORMAL_Q75)
@@ -122,12 +130,12 @@ mod tests {
         // The db2 taps sum to 0 only to rounding, so a constant gives a tiny
         // estimate; skimage.restoration.estimate_sigma (scikit-image 0.26.0)
         // returns the same 2.855388e-34 for this 9×7 plane of 0.25 in float64.
-        let tiny = noise_sigma(&Plane::filled(9, 7, 0.25).unwrap()).unwrap();
+        let tiny = noise_sigma(&Plane::filled(9, 7, 0.25).unwrap(), None).unwrap();
         assert!((tiny / 2.8553880082348866e-34 - 1.0).abs() < 1e-6, "{tiny:e}");
-        assert_eq!(noise_sigma(&Plane::zeros(9, 7).unwrap()), None);
-        assert_eq!(noise_sigma(&Plane::zeros(1, 1).unwrap()), None);
-        assert!(noise_sigma(&Plane::from_fn(5, 1, |x, _| (x % 2) as f32).unwrap()).is_some());
-        assert_eq!(noise_sigma(&Plane::from_vec(2, 1, vec![f32::NAN, 0.0]).unwrap()), None);
+        assert_eq!(noise_sigma(&Plane::zeros(9, 7).unwrap(), None), None);
+        assert_eq!(noise_sigma(&Plane::zeros(1, 1).unwrap(), None), None);
+        assert!(noise_sigma(&Plane::from_fn(5, 1, |x, _| (x % 2) as f32).unwrap(), None).is_some());
+        assert_eq!(noise_sigma(&Plane::from_vec(2, 1, vec![f32::NAN, 0.0]).unwrap(), None), None);
     }
 
     #[test]
@@ -144,7 +152,7 @@ mod tests {
             (0.05 * (-2.0 * u.ln()).sqrt() * (std::f64::consts::TAU * v).cos()) as f32
         })
         .unwrap();
-        let est = noise_sigma(&plane).unwrap();
+        let est = noise_sigma(&plane, None).unwrap();
         assert!((est / 0.05 - 1.0).abs() < 0.05, "{est}");
     }
 }

@@ -108,13 +108,14 @@ pub fn run(args: DiffArgs) -> Exit {
         }
     };
     let mut failures = Vec::new();
+    // NaN differences fail every threshold.
     if let Some(x) = args.max_diff
-        && !(result.largest.value <= x)
+        && (result.largest.value > x || result.largest.value.is_nan())
     {
         failures.push(format!("largest difference {} exceeds --max-diff {x}", result.largest.value));
     }
     if let Some(db) = args.min_psnr
-        && !(result.psnr >= db)
+        && (result.psnr < db || result.psnr.is_nan())
     {
         failures.push(format!("PSNR {:.4} dB is below --min-psnr {db}", result.psnr));
     }

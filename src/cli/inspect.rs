@@ -167,11 +167,11 @@ pub fn run(args: InspectArgs) -> Exit {
         let name = Location::parse(path).display();
         match inspect(path) {
             Ok(found) => {
-                if let Some(plot_path) = &args.plot {
-                    if let Err(e) = write_png(plot_path, &histogram_plot(&found), args.overwrite) {
-                        report(format!("{}: {e}", plot_path.display()));
-                        failed = true;
-                    }
+                if let Some(plot_path) = &args.plot
+                    && let Err(e) = write_png(plot_path, &histogram_plot(&found), args.overwrite)
+                {
+                    report(format!("{}: {e}", plot_path.display()));
+                    failed = true;
                 }
                 if args.json {
                     json.push(to_json(&found));

@@ -34,10 +34,10 @@ impl std::fmt::Display for Json {
             Json::Null => f.write_str("null"),
             Json::Bool(b) => write!(f, "{b}"),
             Json::Int(i) => write!(f, "{i}"),
-            Json::Num(v) if v.is_finite() => {
-                // Rust's shortest round-trip form; integers get no exponent or point.
-                write!(f, "{v}")
-            }
+            // Whole numbers without a point; others in the shortest round-trip
+            // form, with an exponent when very small or large (valid JSON either way).
+            Json::Num(v) if v.is_finite() && v.trunc() == *v && v.abs() < 1e15 => write!(f, "{v}"),
+            Json::Num(v) if v.is_finite() => write!(f, "{v:?}"),
             Json::Num(_) => f.write_str("null"),
             Json::Str(s) => {
                 f.write_str("\"")?;
@@ -91,5 +91,8 @@ mod tests {
         ]);
         assert_eq!(v.to_string(), r#"{"a":[1,0.5,null,null],"s":"q\"\\\n\u0001é","t":true}"#);
         assert_eq!(Json::Num(3.0).to_string(), "3");
+        assert_eq!(Json::Num(2.5e-17).to_string(), "2.5e-17");
+        assert_eq!(Json::Num(-0.125).to_string(), "-0.125");
+        assert_eq!(Json::Num(1e300).to_string(), "1e300");
     }
 }

@@ -44,7 +44,8 @@ pub struct ChannelStats {
 /// code `k / n` (an untouched 8- or 16-bit source): the summary then comes from
 /// the code histogram and is exact up to the final f64 divisions. Otherwise
 /// the samples are summed in f64 in fixed chunks (two passes: mean, then the
-/// squared deviations) and a sorted copy gives the percentiles. Parallel on
+/// squared deviations) and the percentiles are exact order statistics found
+/// by a two-level radix count (no copy, no sort). Parallel on
 /// rayon; the result does not depend on the number of threads.
 pub fn channel_stats(plane: &Plane, levels: Option<u32>) -> ChannelStats {
     let samples = plane.as_slice();
@@ -150,28 +151,99 @@ fn from_samples(samples: &[f32], non_finite: u64) -> ChannelStats {
         .par_chunks(CHUNK)
         .map(|c| c.iter().filter(|v| v.is_finite()).map(|&v| (f64::from(v) - mean).powi(2)).sum())
         .collect();
-    let mut sorted: Vec<f32> = samples.par_iter().copied().filter(|v| v.is_finite()).collect();
-    sorted.par_sort_unstable_by(f32::total_cmp);
+    let percentiles = percentiles_by_radix(samples, &PERCENTILES);
     ChannelStats {
         count,
         min: partials.iter().map(|p| p.min).fold(f64::INFINITY, f64::min),
         max: partials.iter().map(|p| p.max).fold(f64::NEG_INFINITY, f64::max),
         mean,
         std: (squares.iter().sum::<f64>() / count as f64).sqrt(),
-        percentiles: PERCENTILES.iter().map(|&p| (p, percentile_of_sorted(&sorted, p))).collect(),
+        percentiles: PERCENTILES.iter().copied().zip(percentiles).collect(),
         at_zero: partials.iter().map(|p| p.at_zero).sum(),
         at_full: partials.iter().map(|p| p.at_full).sum(),
         non_finite,
     }
 }
 
-/// The type-7 percentile of sorted, non-empty `x` (see [`ChannelStats::percentiles`]).
-fn percentile_of_sorted(x: &[f32], p: f64) -> f64 {
-    let h = p / 100.0 * (x.len() - 1) as f64;
-    let lo = h.floor() as usize;
-    let hi = (lo + 1).min(x.len() - 1);
-    let (a, b) = (f64::from(x[lo]), f64::from(x[hi]));
-    a + (h - lo as f64) * (b - a)
+/// The type-7 percentiles `ps` of the finite samples (at least one) of `x`
+/// (see [`ChannelStats::percentiles`]), found exactly without sorting: each
+/// finite f32 maps to a 32-bit key in the same order (sign bit flipped for
+/// positives, all bits for negatives — the order of `f32::total_cmp`); one
+/// parallel pass counts the keys' top 16 bits, which locates the bucket of
+/// every wanted rank, and one pass per such bucket counts its low 16 bits,
+/// which gives the rank's exact key.
+fn percentiles_by_radix(x: &[f32], ps: &[f64]) -> Vec<f64> {
+    let top = key_histogram(x, |k| Some((k >> 16) as usize));
+    let total: u64 = top.iter().sum();
+    let last = total - 1;
+    let mut buckets: Vec<(usize, Vec<u64>)> = Vec::new();
+    let mut order_statistic = |rank: u64| -> f64 {
+        let (bucket, within) = locate(&top, rank);
+        let low = match buckets.iter().position(|(b, _)| *b == bucket) {
+            Some(i) => &buckets[i].1,
+            None => {
+                let h = key_histogram(x, |k| ((k >> 16) as usize == bucket).then_some((k & 0xFFFF) as usize));
+                buckets.push((bucket, h));
+                &buckets[buckets.len() - 1].1
+            }
+        };
+        let (low_bits, _) = locate(low, within);
+        f64::from(from_key(((bucket as u32) << 16) | low_bits as u32))
+    };
+    ps.iter()
+        .map(|&p| {
+            let h = p / 100.0 * last as f64;
+            let lo = h.floor() as u64;
+            let a = order_statistic(lo);
+            let frac = h - lo as f64;
+            if frac == 0.0 { a } else { a + frac * (order_statistic((lo + 1).min(last)) - a) }
+        })
+        .collect()
+}
+
+/// An order-preserving key: `key(a) < key(b)` exactly when `a.total_cmp(&b)` is `Less`.
+fn key(v: f32) -> u32 {
+    let b = v.to_bits();
+    if b >> 31 == 1 { !b } else { b | 0x8000_0000 }
+}
+
+fn from_key(k: u32) -> f32 {
+    f32::from_bits(if k >> 31 == 1 { k & 0x7FFF_FFFF } else { !k })
+}
+
+/// Counts of the finite samples' keys in 65536 bins chosen by `bin` (`None` skips).
+fn key_histogram(x: &[f32], bin: impl Fn(u32) -> Option<usize> + Sync) -> Vec<u64> {
+    x.par_chunks(CHUNK)
+        .fold(
+            || vec![0u64; 1 << 16],
+            |mut h, c| {
+                for &v in c.iter().filter(|v| v.is_finite()) {
+                    if let Some(i) = bin(key(v)) {
+                        h[i] += 1;
+                    }
+                }
+                h
+            },
+        )
+        .reduce(
+            || vec![0u64; 1 << 16],
+            |mut a, b| {
+                a.iter_mut().zip(&b).for_each(|(x, y)| *x += y);
+                a
+            },
+        )
+}
+
+/// The bin holding 0-based rank `rank` of the counted values, and the rank within it.
+fn locate(counts: &[u64], rank: u64) -> (usize, u64) {
+    let mut below = 0;
+    for (i, &c) in counts.iter().enumerate() {
+        if rank < below + c {
+            return (i, rank - below);
+        }
+        below += c;
+    }
+    (counts.len() - 1, 0)
 }
 
 /// Counts of the finite samples of `plane` in `bins` equal bins over
@@ -217,13 +289,48 @@ mod tests {
     }
 
     #[test]
+    fn keys_keep_the_total_order() {
+        let v = [f32::NEG_INFINITY, -3e38, -1.0, -1e-40, -0.0, 0.0, 1e-40, 1.0, 3e38, f32::INFINITY];
+        for w in v.windows(2) {
+            assert!(key(w[0]) < key(w[1]), "{} {}", w[0], w[1]);
+        }
+        assert!(v.iter().all(|&x| from_key(key(x)).to_bits() == x.to_bits()));
+    }
+
+    #[test]
     fn type_7_percentiles_of_a_small_set() {
         // numpy.percentile([1, 2, 3, 4], [1, 50, 99]) = 1.03, 2.5, 3.97 (linear method).
-        let x = [1.0f32, 2.0, 3.0, 4.0];
-        assert!((percentile_of_sorted(&x, 1.0) - 1.03).abs() < 1e-12);
-        assert!((percentile_of_sorted(&x, 50.0) - 2.5).abs() < 1e-12);
-        assert!((percentile_of_sorted(&x, 99.0) - 3.97).abs() < 1e-12);
-        assert_eq!(percentile_of_sorted(&[5.0], 99.0), 5.0);
+        let x = [4.0f32, 1.0, 3.0, 2.0];
+        let p = percentiles_by_radix(&x, &[1.0, 50.0, 99.0, 100.0]);
+        for (got, want) in p.iter().zip([1.03, 2.5, 3.97, 4.0]) {
+            assert!((got - want).abs() < 1e-12, "{got} vs {want}");
+        }
+        assert_eq!(percentiles_by_radix(&[5.0], &[0.0, 99.0]), vec![5.0, 5.0]);
+    }
+
+    #[test]
+    fn radix_order_statistics_agree_with_sorting() {
+        // Negative, positive, ±0, subnormal and huge values, many ties, NaN skipped.
+        let mut state = 7u64;
+        let mut values: Vec<f32> = (0..1001)
+            .map(|_| {
+                state = state.wrapping_mul(6364136223846793005).wrapping_add(1);
+                ((state >> 45) % 300) as f32 / 7.0 - 20.0
+            })
+            .collect();
+        values[..6].copy_from_slice(&[0.0, -0.0, 1e-40, -3e38, 3e38, 1e-3]);
+        let with_nan: Vec<f32> = values.iter().copied().chain([f32::NAN, f32::INFINITY]).collect();
+        let mut sorted = values.clone();
+        sorted.sort_by(f32::total_cmp);
+        let ps: Vec<f64> = (0..=200).map(|i| f64::from(i) / 2.0).collect();
+        let got = percentiles_by_radix(&with_nan, &ps);
+        for (&p, g) in ps.iter().zip(got) {
+            let h = p / 100.0 * 1000.0;
+            let (lo, frac) = (h.floor() as usize, h - h.floor());
+            let (a, b) = (f64::from(sorted[lo]), f64::from(sorted[(lo + 1).min(1000)]));
+            let want = if frac == 0.0 { a } else { a + frac * (b - a) };
+            assert_eq!(g, want, "p{p}");
+        }
     }
 
     #[test]

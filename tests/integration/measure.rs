@@ -328,3 +328,58 @@ fn diff_heatmap_is_a_png_of_the_image_size() {
         assert_eq!(p.get(60, 7), 1.0);
     }
 }
+
+#[test]
+fn inspect_float_images_report_values_and_count_non_finite_samples() {
+    // A 32-bit float RGB TIFF: no codes, the histogram over [min(0, lo), max(1, hi)].
+    let plane = |f: fn(usize, usize) -> f32| Plane::from_fn(8, 6, f).unwrap();
+    let mut raster = Raster::new(
+        vec![
+            plane(|x, _| x as f32 * 0.5 - 1.0),
+            plane(|_, y| y as f32 / 5.0),
+            plane(|x, y| if (x, y) == (1, 1) { f32::NAN } else { 0.25 }),
+        ],
+        Layout::Rgb,
+        Encoding::Linear,
+    )
+    .unwrap();
+    raster.metadata.source_sample = Some(SampleType::F32);
+    let mut options = pumice::io::EncodeOptions::new(pumice::io::Format::Tiff);
+    options.encoding = Encoding::Linear; // the file holds the values as they are
+    let bytes = pumice::io::encode(&raster, &options).unwrap();
+    let scratch = Scratch::new();
+    let path = scratch.write("float.tif", &bytes);
+    let out = pumice(&["inspect", "--json", path.to_str().unwrap()]).ok().stdout();
+    for field in [
+        "\"sample\":\"f32\"",
+        "\"bits\":32",
+        "\"full_scale\":null",
+        "\"encoding\":\"linear\"",
+        "\"codes\":null",
+        "\"histogram_range\":[-1,2.5]",
+        "\"min\":-1,\"max\":2.5",
+        "\"non_finite\":1",
+    ] {
+        assert!(out.contains(field), "missing {field} in {out}");
+    }
+    let text = pumice(&["inspect", path.to_str().unwrap()]).ok().stdout();
+    assert!(text.contains("NaN or infinite") && text.contains("value"), "{text}");
+}
+
+#[test]
+fn inspect_summarises_exif() {
+    let mut raster =
+        Raster::new(vec![Plane::filled(6, 4, 0.5).unwrap()], Layout::Gray, Encoding::Srgb).unwrap();
+    raster.metadata.exif = Some(pumice::io::exif::minimal_with_orientation(6, false));
+    raster.metadata.orientation = 6;
+    raster.metadata.source_sample = Some(SampleType::U8);
+    let mut options = pumice::io::EncodeOptions::new(pumice::io::Format::Png);
+    options.keep_metadata = true;
+    let bytes = pumice::io::encode(&raster, &options).unwrap();
+    let scratch = Scratch::new();
+    let path = scratch.write("sideways.png", &bytes);
+    let out = pumice(&["inspect", "--json", path.to_str().unwrap()]).ok().stdout();
+    // Read upright, as `pumice run` would: 4 × 6; the EXIF block says how it was stored.
+    assert!(out.contains("\"width\":4,\"height\":6"), "{out}");
+    assert!(out.contains("\"exif\":{\"readable\":true,\"orientation\":6"), "{out}");
+}

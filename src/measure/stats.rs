@@ -49,12 +49,11 @@ pub struct ChannelStats {
 /// rayon; the result does not depend on the number of threads.
 pub fn channel_stats(plane: &Plane, levels: Option<u32>) -> ChannelStats {
     let samples = plane.as_slice();
-    let non_finite =
-        samples.par_chunks(CHUNK).map(|c| c.iter().filter(|v| !v.is_finite()).count() as u64).sum();
-    match levels.filter(|&n| (1..=65535).contains(&n)) {
-        Some(n) if non_finite == 0 => from_codes(samples, n),
-        _ => from_samples(samples, non_finite),
-    }
+    // A raster with exact codes has no NaN; should one appear, the float path handles it.
+    levels
+        .filter(|&n| (1..=65535).contains(&n))
+        .and_then(|n| from_codes(samples, n))
+        .unwrap_or_else(|| from_samples(samples))
 }
 
 fn empty(non_finite: u64) -> ChannelStats {
@@ -71,10 +70,14 @@ fn empty(non_finite: u64) -> ChannelStats {
     }
 }
 
-fn from_codes(samples: &[f32], n: u32) -> ChannelStats {
+/// The summary from the code histogram, or `None` if some sample is not finite.
+fn from_codes(samples: &[f32], n: u32) -> Option<ChannelStats> {
     let binning = Binning::Codes { n };
     let counts = histogram::histogram(&[samples], &binning);
     let total: u64 = counts.iter().sum();
+    if total != samples.len() as u64 {
+        return None;
+    }
     let scale = f64::from(n);
     // Sums of code × count are exact in u128; only the final divisions round.
     let sum: u128 = counts.iter().enumerate().map(|(k, &c)| k as u128 * u128::from(c)).sum();
@@ -91,7 +94,7 @@ fn from_codes(samples: &[f32], n: u32) -> ChannelStats {
         / total as f64;
     let first = counts.iter().position(|&c| c > 0).unwrap_or(0);
     let last = counts.iter().rposition(|&c| c > 0).unwrap_or(0);
-    ChannelStats {
+    Some(ChannelStats {
         count: total,
         min: first as f64 / scale,
         max: last as f64 / scale,
@@ -104,7 +107,7 @@ fn from_codes(samples: &[f32], n: u32) -> ChannelStats {
         at_zero: counts[0],
         at_full: counts[n as usize],
         non_finite: 0,
-    }
+    })
 }
 
 /// Partial sums of one chunk: count, sum, min, max, at zero, at full scale.
@@ -118,7 +121,7 @@ struct Partial {
     at_full: u64,
 }
 
-fn from_samples(samples: &[f32], non_finite: u64) -> ChannelStats {
+fn from_samples(samples: &[f32]) -> ChannelStats {
     let partials: Vec<Partial> = samples
         .par_chunks(CHUNK)
         .map(|c| {
@@ -143,6 +146,7 @@ fn from_samples(samples: &[f32], non_finite: u64) -> ChannelStats {
         })
         .collect();
     let count: u64 = partials.iter().map(|p| p.count).sum();
+    let non_finite = samples.len() as u64 - count;
     if count == 0 {
         return empty(non_finite);
     }
@@ -170,33 +174,45 @@ fn from_samples(samples: &[f32], non_finite: u64) -> ChannelStats {
 /// finite f32 maps to a 32-bit key in the same order (sign bit flipped for
 /// positives, all bits for negatives — the order of `f32::total_cmp`); one
 /// parallel pass counts the keys' top 16 bits, which locates the bucket of
-/// every wanted rank, and one pass per such bucket counts its low 16 bits,
-/// which gives the rank's exact key.
+/// every wanted rank, and a second pass counts the low 16 bits of the keys in
+/// those buckets, which gives each rank's exact key.
 fn percentiles_by_radix(x: &[f32], ps: &[f64]) -> Vec<f64> {
-    let top = key_histogram(x, |k| Some((k >> 16) as usize));
-    let total: u64 = top.iter().sum();
-    let last = total - 1;
-    let mut buckets: Vec<(usize, Vec<u64>)> = Vec::new();
-    let mut order_statistic = |rank: u64| -> f64 {
-        let (bucket, within) = locate(&top, rank);
-        let low = match buckets.iter().position(|(b, _)| *b == bucket) {
-            Some(i) => &buckets[i].1,
-            None => {
-                let h = key_histogram(x, |k| ((k >> 16) as usize == bucket).then_some((k & 0xFFFF) as usize));
-                buckets.push((bucket, h));
-                &buckets[buckets.len() - 1].1
-            }
-        };
-        let (low_bits, _) = locate(low, within);
-        f64::from(from_key(((bucket as u32) << 16) | low_bits as u32))
-    };
-    ps.iter()
+    const BUCKET: usize = 1 << 16;
+    let top = key_histogram(x, BUCKET, |k| Some((k >> 16) as usize));
+    let last = top.iter().sum::<u64>() - 1;
+    // (rank below, rank above, weight of the one above) per percentile.
+    let ranks: Vec<(u64, u64, f64)> = ps
+        .iter()
         .map(|&p| {
             let h = p / 100.0 * last as f64;
             let lo = h.floor() as u64;
-            let a = order_statistic(lo);
-            let frac = h - lo as f64;
-            if frac == 0.0 { a } else { a + frac * (order_statistic((lo + 1).min(last)) - a) }
+            (lo, (lo + 1).min(last), h - lo as f64)
+        })
+        .collect();
+    let located: Vec<(u64, (usize, u64))> =
+        ranks.iter().flat_map(|&(lo, hi, _)| [lo, hi]).map(|r| (r, locate(&top, r))).collect();
+    let mut buckets: Vec<usize> = located.iter().map(|&(_, (b, _))| b).collect();
+    buckets.sort_unstable();
+    buckets.dedup();
+    let mut slot = vec![usize::MAX; BUCKET];
+    for (i, &b) in buckets.iter().enumerate() {
+        slot[b] = i;
+    }
+    let low = key_histogram(x, buckets.len() * BUCKET, |k| {
+        let s = slot[(k >> 16) as usize];
+        (s != usize::MAX).then(|| s * BUCKET + (k & 0xFFFF) as usize)
+    });
+    let value = |rank: u64| -> f64 {
+        let (bucket, within) = located.iter().find(|l| l.0 == rank).map(|l| l.1).unwrap_or((0, 0));
+        let s = slot[bucket];
+        let (low_bits, _) = locate(&low[s * BUCKET..(s + 1) * BUCKET], within);
+        f64::from(from_key(((bucket as u32) << 16) | low_bits as u32))
+    };
+    ranks
+        .iter()
+        .map(|&(lo, hi, frac)| {
+            let a = value(lo);
+            if frac == 0.0 { a } else { a + frac * (value(hi) - a) }
         })
         .collect()
 }
@@ -211,11 +227,11 @@ fn from_key(k: u32) -> f32 {
     f32::from_bits(if k >> 31 == 1 { k & 0x7FFF_FFFF } else { !k })
 }
 
-/// Counts of the finite samples' keys in 65536 bins chosen by `bin` (`None` skips).
-fn key_histogram(x: &[f32], bin: impl Fn(u32) -> Option<usize> + Sync) -> Vec<u64> {
+/// Counts of the finite samples' keys in `bins` bins chosen by `bin` (`None` skips).
+fn key_histogram(x: &[f32], bins: usize, bin: impl Fn(u32) -> Option<usize> + Sync) -> Vec<u64> {
     x.par_chunks(CHUNK)
         .fold(
-            || vec![0u64; 1 << 16],
+            || vec![0u64; bins],
             |mut h, c| {
                 for &v in c.iter().filter(|v| v.is_finite()) {
                     if let Some(i) = bin(key(v)) {
@@ -226,7 +242,7 @@ fn key_histogram(x: &[f32], bin: impl Fn(u32) -> Option<usize> + Sync) -> Vec<u6
             },
         )
         .reduce(
-            || vec![0u64; 1 << 16],
+            || vec![0u64; bins],
             |mut a, b| {
                 a.iter_mut().zip(&b).for_each(|(x, y)| *x += y);
                 a

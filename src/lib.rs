@@ -14,6 +14,7 @@ pub mod error;
 pub mod fuzzing;
 pub mod io;
 pub mod job;
+pub mod measure;
 pub mod ops;
 pub mod pipeline;
 pub mod raster;

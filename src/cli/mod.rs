@@ -2,6 +2,9 @@
 //! that turns parsed arguments into library calls. No image maths here.
 
 mod completions;
+mod diff;
+mod inspect;
+mod json;
 mod manual;
 mod ops;
 mod recipe;
@@ -49,6 +52,10 @@ pub enum Command {
     /// Work with recipe files
     #[command(subcommand)]
     Recipe(recipe::RecipeCommand),
+    /// Describe images: size, type, metadata, statistics, noise, histogram
+    Inspect(inspect::InspectArgs),
+    /// Compare two images: PSNR, SSIM, largest difference; exit code for scripts
+    Diff(diff::DiffArgs),
     /// Print a shell completion script
     Completions(completions::CompletionsArgs),
     /// Print the manual page (roff)
@@ -62,6 +69,8 @@ pub fn main() -> Exit {
         Command::Run(args) => run::run(*args),
         Command::Ops(args) => ops::run(args),
         Command::Recipe(cmd) => recipe::run(cmd),
+        Command::Inspect(args) => inspect::run(args),
+        Command::Diff(args) => diff::run(args),
         Command::Completions(args) => completions::run(args),
         Command::Manual => manual::run(),
     }

@@ -27,7 +27,19 @@ fn text(bytes: &[u8]) -> Option<&str> {
 #[test]
 fn the_fuzz_corpora_replay_without_panics() {
     assert!(replay("decode", pumice::fuzzing::decode) >= 10);
-    assert!(replay("step", |b| if let Some(t) = text(b) { pumice::fuzzing::step(t) }) >= 20);
-    assert!(replay("recipe", |b| if let Some(t) = text(b) { pumice::fuzzing::recipe(t) }) >= 4);
-    assert!(replay("template", |b| if let Some(t) = text(b) { pumice::fuzzing::template(t) }) >= 5);
+    assert!(
+        replay("step", |b| if let Some(t) = text(b) {
+            pumice::fuzzing::step(t)
+        }) >= 20
+    );
+    assert!(
+        replay("recipe", |b| if let Some(t) = text(b) {
+            pumice::fuzzing::recipe(t)
+        }) >= 4
+    );
+    assert!(
+        replay("template", |b| if let Some(t) = text(b) {
+            pumice::fuzzing::template(t)
+        }) >= 5
+    );
 }

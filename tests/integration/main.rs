@@ -13,6 +13,7 @@ mod fidelity;
 mod filters;
 mod fuzz_corpus;
 mod hostile;
+mod measure;
 mod orientation;
 mod reference;
 mod resample;

@@ -7,6 +7,7 @@ pub mod edge;
 pub mod filter;
 pub mod geometry;
 pub mod histogram;
+pub mod morph;
 pub mod params;
 pub mod threshold;
 pub mod tone;

@@ -3,7 +3,7 @@
 
 use crate::error::Error;
 use crate::ops::params::OpSpec;
-use crate::ops::{colour, edge, filter, geometry, morph, threshold, tone};
+use crate::ops::{colour, edge, filter, geometry, morph, science, threshold, tone};
 
 /// Every operator, in the order `pumice ops` lists them (by family).
 pub static OPERATORS: &[&OpSpec] = &[
@@ -38,6 +38,10 @@ pub static OPERATORS: &[&OpSpec] = &[
     &morph::OPEN,
     &morph::CLOSE,
     &morph::TOPHAT,
+    &science::BIN,
+    &science::HOTPIXEL,
+    &science::FLATFIELD,
+    &science::ILLUMINATION,
 ];
 
 /// The operator called `name`, or an error suggesting the nearest name.

@@ -8,6 +8,7 @@ mod cmyk;
 mod codecs;
 mod colour;
 mod filters;
+mod morph;
 mod orientation;
 mod reference;
 mod resample;

@@ -78,7 +78,9 @@ impl Element {
 pub(crate) trait Extreme: Copy + Send + Sync + 'static {
     /// The value that never wins (+∞ for the minimum).
     const IDENTITY: f32;
-    /// The winner of two samples; a NaN loses to any number.
+    /// The winner of `a` (never NaN in the running arrays) and a sample `b`;
+    /// a NaN `b` loses. One compare-and-select, so it maps to a single min or
+    /// max instruction.
     fn pick(a: f32, b: f32) -> f32;
 }
 
@@ -91,7 +93,7 @@ impl Extreme for Min {
     const IDENTITY: f32 = f32::INFINITY;
     #[inline(always)]
     fn pick(a: f32, b: f32) -> f32 {
-        a.min(b)
+        if b < a { b } else { a }
     }
 }
 
@@ -99,7 +101,7 @@ impl Extreme for Max {
     const IDENTITY: f32 = f32::NEG_INFINITY;
     #[inline(always)]
     fn pick(a: f32, b: f32) -> f32 {
-        a.max(b)
+        if b > a { b } else { a }
     }
 }
 
@@ -184,9 +186,15 @@ fn horizontal<E: Extreme>(src: &Plane, r: usize, border: Border) -> Plane {
     out
 }
 
+/// Columns per strip of the vertical pass: the block arrays of a strip
+/// (2 × (band + 2r) rows of 256 samples) stay in L2 where whole rows would not.
+const STRIP: usize = 256;
+
 /// The running extreme of height 2r+1 down every column: the same block
-/// arrays as [`running`], with whole rows as the elements (so the inner loops
-/// run along contiguous rows).
+/// arrays as [`running`], with row segments as the elements (so the inner
+/// loops run along contiguous samples), one strip of [`STRIP`] columns at a time.
+/// The rows come from the horizontal pass (or the border's constant), which
+/// holds no NaN, so each array may start as a copy of its row.
 fn vertical<E: Extreme>(src: &Plane, r: usize, border: Border) -> Plane {
     let w = src.width();
     let k = 2 * r + 1;
@@ -196,30 +204,38 @@ fn vertical<E: Extreme>(src: &Plane, r: usize, border: Border) -> Plane {
     tile::for_each_band(&mut out, tile::band_rows(w, r), |y0, band| {
         let n = band.len() / w;
         let m = n + 2 * r;
-        let row = |i: usize| {
-            tile::source_row(src, y0 as isize - r as isize + i as isize, border).unwrap_or(&const_row)
-        };
-        let mut g = vec![0.0; m * w];
-        let mut h = vec![0.0; m * w];
-        for i in 0..m {
-            let (before, rest) = g.split_at_mut(i * w);
-            let gi = &mut rest[..w];
-            gi.copy_from_slice(row(i));
-            if i % k != 0 {
-                pick_rows::<E>(gi, &before[(i - 1) * w..]);
+        let rows: Vec<&[f32]> = (0..m)
+            .map(|i| {
+                tile::source_row(src, y0 as isize - r as isize + i as isize, border).unwrap_or(&const_row)
+            })
+            .collect();
+        let sw = STRIP.min(w);
+        let mut g = vec![0.0; m * sw];
+        let mut h = vec![0.0; m * sw];
+        for x0 in (0..w).step_by(sw) {
+            let x1 = (x0 + sw).min(w);
+            let s = x1 - x0;
+            for i in 0..m {
+                let (before, rest) = g.split_at_mut(i * sw);
+                let gi = &mut rest[..s];
+                gi.copy_from_slice(&rows[i][x0..x1]);
+                if i % k != 0 {
+                    pick_rows::<E>(gi, &before[(i - 1) * sw..(i - 1) * sw + s]);
+                }
             }
-        }
-        for i in (0..m).rev() {
-            let (head, after) = h.split_at_mut((i + 1) * w);
-            let hi = &mut head[i * w..];
-            hi.copy_from_slice(row(i));
-            if i % k != k - 1 && i + 1 < m {
-                pick_rows::<E>(hi, &after[..w]);
+            for i in (0..m).rev() {
+                let (head, after) = h.split_at_mut((i + 1) * sw);
+                let hi = &mut head[i * sw..i * sw + s];
+                hi.copy_from_slice(&rows[i][x0..x1]);
+                if i % k != k - 1 && i + 1 < m {
+                    pick_rows::<E>(hi, &after[..s]);
+                }
             }
-        }
-        for (j, out_row) in band.chunks_exact_mut(w).enumerate() {
-            out_row.copy_from_slice(&h[j * w..(j + 1) * w]);
-            pick_rows::<E>(out_row, &g[(j + k - 1) * w..(j + k) * w]);
+            for (j, out_row) in band.chunks_exact_mut(w).enumerate() {
+                let o = &mut out_row[x0..x1];
+                o.copy_from_slice(&h[j * sw..j * sw + s]);
+                pick_rows::<E>(o, &g[(j + k - 1) * sw..(j + k - 1) * sw + s]);
+            }
         }
     });
     out

@@ -281,12 +281,13 @@ impl BallKernel {
 
     /// `min_d f(x + d) − b(d)`; outside samples take no part.
     fn erode(&self, f: &Plane) -> Plane {
-        self.pass(f, f32::INFINITY, |acc, v, b| acc.min(v - b))
+        // Compare and select (one min instruction); a NaN sample takes no part.
+        self.pass(f, f32::INFINITY, |acc, v, b| if v - b < acc { v - b } else { acc })
     }
 
     /// `max_d f(x + d) + b(d)` (the ball is symmetric); outside samples take no part.
     fn dilate(&self, f: &Plane) -> Plane {
-        self.pass(f, f32::NEG_INFINITY, |acc, v, b| acc.max(v + b))
+        self.pass(f, f32::NEG_INFINITY, |acc, v, b| if v + b > acc { v + b } else { acc })
     }
 
     fn pass(&self, f: &Plane, outside: f32, op: impl Fn(f32, f32, f32) -> f32 + Sync) -> Plane {

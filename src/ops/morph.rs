@@ -127,7 +127,7 @@ fn flat<E: Extreme>(src: &Plane, element: Element, border: Border) -> Plane {
         return src.clone();
     }
     match element.shape {
-        Shape::Square => vertical::<E>(&horizontal::<E>(src, r, border), r, border),
+        Shape::Square => square::<E>(src, r, border),
         Shape::Cross | Shape::Disk => span_union::<E>(src, &element.half_widths(), border),
     }
 }
@@ -171,31 +171,19 @@ fn pick_rows<E: Extreme>(acc: &mut [f32], row: &[f32]) {
     }
 }
 
-/// The running extreme of width 2r+1 along every row.
-fn horizontal<E: Extreme>(src: &Plane, r: usize, border: Border) -> Plane {
-    let w = src.width();
-    let mut out =
-        Plane::zeros(w, src.height()).unwrap_or_else(|_| unreachable!("same size as a valid plane"));
-    tile::for_each_band(&mut out, tile::band_rows(w, 0), |y0, band| {
-        let (mut padded, mut g, mut h) = (vec![0.0; w + 2 * r], Vec::new(), Vec::new());
-        for (i, row) in band.chunks_exact_mut(w).enumerate() {
-            tile::pad_row(src.row(y0 + i), r, border, &mut padded);
-            running::<E>(&padded, 2 * r + 1, row, &mut g, &mut h);
-        }
-    });
-    out
-}
-
 /// Columns per strip of the vertical pass: the block arrays of a strip
 /// (2 × (band + 2r) rows of 256 samples) stay in L2 where whole rows would not.
 const STRIP: usize = 256;
 
-/// The running extreme of height 2r+1 down every column: the same block
-/// arrays as [`running`], with row segments as the elements (so the inner
-/// loops run along contiguous samples), one strip of [`STRIP`] columns at a time.
-/// The rows come from the horizontal pass (or the border's constant), which
-/// holds no NaN, so each array may start as a copy of its row.
-fn vertical<E: Extreme>(src: &Plane, r: usize, border: Border) -> Plane {
+/// The extreme over the (2r+1)² square, one band at a time: the running
+/// extreme of width 2r+1 along each source row the band needs (its rows and r
+/// of halo above and below, under `border`), kept in a band buffer, then the
+/// running extreme of height 2r+1 down the columns of that buffer — the same
+/// block arrays as [`running`], with row segments as the elements (so the
+/// inner loops run along contiguous samples), one strip of [`STRIP`] columns at
+/// a time. No full-size intermediate plane; the halo rows are recomputed by
+/// neighbouring bands (2r per band).
+fn square<E: Extreme>(src: &Plane, r: usize, border: Border) -> Plane {
     let w = src.width();
     let k = 2 * r + 1;
     let const_row = vec![border.constant_value(); w];
@@ -204,21 +192,31 @@ fn vertical<E: Extreme>(src: &Plane, r: usize, border: Border) -> Plane {
     tile::for_each_band(&mut out, tile::band_rows(w, r), |y0, band| {
         let n = band.len() / w;
         let m = n + 2 * r;
-        let rows: Vec<&[f32]> = (0..m)
-            .map(|i| {
-                tile::source_row(src, y0 as isize - r as isize + i as isize, border).unwrap_or(&const_row)
-            })
-            .collect();
+        // Horizontal pass. A constant row stays constant; its running extreme
+        // holds no NaN, so the vertical arrays may start as copies of rows.
+        let (mut padded, mut g, mut h) = (vec![0.0; w + 2 * r], Vec::new(), Vec::new());
+        let mut rows = vec![0.0; m * w];
+        for (i, row) in rows.chunks_exact_mut(w).enumerate() {
+            match tile::source_row(src, y0 as isize - r as isize + i as isize, border) {
+                Some(s) => {
+                    tile::pad_row(s, r, border, &mut padded);
+                    running::<E>(&padded, k, row, &mut g, &mut h);
+                }
+                None => row.copy_from_slice(&const_row),
+            }
+        }
+        // Vertical pass over the band buffer.
         let sw = STRIP.min(w);
         let mut g = vec![0.0; m * sw];
         let mut h = vec![0.0; m * sw];
+        let row = |i: usize| &rows[i * w..(i + 1) * w];
         for x0 in (0..w).step_by(sw) {
             let x1 = (x0 + sw).min(w);
             let s = x1 - x0;
             for i in 0..m {
                 let (before, rest) = g.split_at_mut(i * sw);
                 let gi = &mut rest[..s];
-                gi.copy_from_slice(&rows[i][x0..x1]);
+                gi.copy_from_slice(&row(i)[x0..x1]);
                 if i % k != 0 {
                     pick_rows::<E>(gi, &before[(i - 1) * sw..(i - 1) * sw + s]);
                 }
@@ -226,7 +224,7 @@ fn vertical<E: Extreme>(src: &Plane, r: usize, border: Border) -> Plane {
             for i in (0..m).rev() {
                 let (head, after) = h.split_at_mut((i + 1) * sw);
                 let hi = &mut head[i * sw..i * sw + s];
-                hi.copy_from_slice(&rows[i][x0..x1]);
+                hi.copy_from_slice(&row(i)[x0..x1]);
                 if i % k != k - 1 && i + 1 < m {
                     pick_rows::<E>(hi, &after[..s]);
                 }
@@ -300,20 +298,21 @@ pub enum Operation {
 /// alpha is filtered as a plane of its own.
 fn each_plane<E: Extreme>(raster: Raster, pass: impl Fn(&Plane) -> Plane + Sync) -> Result<Raster, Error> {
     let layout = raster.layout();
-    let alpha = raster.alpha().cloned();
+    let alpha = raster.alpha();
     let colour = layout.colour_channels();
-    let mut planes = raster.planes().to_vec();
-    let filtered = planes
-        .iter_mut()
+    let filtered = raster
+        .planes()
+        .iter()
         .enumerate()
-        .map(|(i, p)| match &alpha {
+        .map(|(i, p)| match alpha {
             Some(a) if i < colour => {
-                for (v, &av) in p.as_mut_slice().iter_mut().zip(a.as_slice()) {
+                let mut masked = p.clone();
+                for (v, &av) in masked.as_mut_slice().iter_mut().zip(a.as_slice()) {
                     if av <= 0.0 {
                         *v = E::IDENTITY;
                     }
                 }
-                let mut out = pass(p);
+                let mut out = pass(&masked);
                 for v in out.as_mut_slice() {
                     if v.is_infinite() && *v == E::IDENTITY {
                         *v = 0.0;

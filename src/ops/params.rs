@@ -439,4 +439,14 @@ mod tests {
         assert!(parse_matrix("").is_err());
         assert!(parse_matrix("nan").is_err());
     }
+
+    #[test]
+    fn file_parameters_take_a_path_or_none() {
+        let p = ParamSpec { name: "flat", kind: Kind::File, default: Some("none"), help: "" };
+        assert_eq!(parse_value(&p, "none").unwrap(), Value::File(None));
+        let v = parse_value(&p, " frames/flat.tif ").unwrap();
+        assert_eq!(v, Value::File(Some("frames/flat.tif".into())));
+        assert_eq!(v.to_string(), "frames/flat.tif");
+        assert!(parse_value(&p, "  ").unwrap_err().0.contains("a file path"));
+    }
 }

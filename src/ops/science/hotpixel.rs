@@ -13,6 +13,10 @@ use crate::tile::{self, Border};
 /// (Rousseeuw & Croux 1993, J. Amer. Statist. Assoc. 88(424), eq. 1.1).
 pub const MAD_TO_SIGMA: f64 = 1.4826;
 
+/// The factor that turns a mean absolute deviation into a standard deviation
+/// for normal data: √(π/2) = 1.2533… (the mean of |X| for X ~ N(0, 1) is √(2/π)).
+const MEAN_AD_TO_SIGMA: f64 = 1.253_314_137_315_500_3;
+
 /// The text of `pumice ops hotpixel`, also the doc of [`Hotpixel`].
 macro_rules! hotpixel_doc {
     () => {
@@ -30,8 +34,13 @@ The median of 8 values is the mean of the 4th and 5th smallest. σ is one figure
 per colour plane, from every finite d(x): a median absolute deviation scaled by
 1/Φ⁻¹(3/4) ≈ 1.4826 to estimate the standard deviation of normal noise
 (Rousseeuw & Croux 1993, J. Amer. Statist. Assoc. 88(424)); a single pixel
-cannot move it. Where σ = 0 (more than half of the plane exactly follows its
-neighbours, e.g. synthetic data) any difference at all counts as an outlier.
+cannot move it. Where the MAD is 0 (more than half of the plane exactly follows
+its neighbours: flat or clipped areas of 8-bit images, synthetic data) σ falls
+back to √(π/2) × the mean absolute deviation, the same estimate for normal noise
+(the mean of |X| for X ~ N(0, 1) is √(2/π)), so flat areas do not make every
+small difference an outlier (the zeros still pull this σ down: in a mostly flat
+image, raise k if texture gets touched); if it is 0 too, only NaN samples are
+repaired.
 The default k = 5 is common practice, no published source.
 Reports `repaired samples` (summed over the colour planes; `pumice run -v`).
 Border: mirror (the edge sample is not repeated, so a pixel never counts as its
@@ -92,7 +101,8 @@ pub fn repair_plane(p: &mut Plane, k: f64) -> usize {
     count
 }
 
-/// 1.4826 × the median absolute deviation of the finite values of `d`.
+/// 1.4826 × the median absolute deviation of the finite values of `d`, or,
+/// where that is 0, √(π/2) × their mean absolute deviation.
 fn robust_sigma(d: &[f32]) -> f64 {
     let mut finite: Vec<f32> = d.iter().copied().filter(|v| v.is_finite()).collect();
     if finite.is_empty() {
@@ -102,7 +112,9 @@ fn robust_sigma(d: &[f32]) -> f64 {
     for v in finite.iter_mut() {
         *v = (*v - centre as f32).abs();
     }
-    MAD_TO_SIGMA * median_of(&mut finite)
+    let mean = finite.iter().map(|&v| f64::from(v)).sum::<f64>() / finite.len() as f64;
+    let mad = median_of(&mut finite);
+    if mad > 0.0 { MAD_TO_SIGMA * mad } else { MEAN_AD_TO_SIGMA * mean }
 }
 
 /// The median of `v` (mean of the two middle values for an even count); reorders `v`.
@@ -116,12 +128,41 @@ fn median_of(v: &mut [f32]) -> f64 {
     (f64::from(lo) + f64::from(hi)) / 2.0
 }
 
-/// The median of each sample's 8 neighbours (mirror border).
+/// The 19 comparators of a sorting network for 8 values (Knuth, TAOCP vol. 3,
+/// §5.3.4, n = 8): after them, position i holds the i-th smallest.
+const NET8: [(usize, usize); 19] = [
+    (0, 2),
+    (1, 3),
+    (4, 6),
+    (5, 7),
+    (0, 4),
+    (1, 5),
+    (2, 6),
+    (3, 7),
+    (0, 1),
+    (2, 3),
+    (4, 5),
+    (6, 7),
+    (2, 4),
+    (3, 5),
+    (1, 4),
+    (3, 6),
+    (1, 2),
+    (3, 4),
+    (5, 6),
+];
+
+/// The median of each sample's 8 neighbours (mirror border): the mean of the
+/// 4th and 5th smallest, by the sorting network run on whole rows at once (each
+/// comparator is an element-wise min and max of two rows of neighbours).
 fn neighbour_median(src: &Plane) -> Plane {
     let (w, h) = (src.width(), src.height());
     let mut out = Plane::zeros(w, h).unwrap_or_else(|_| unreachable!("same size as a valid plane"));
+    // Offsets of the 8 neighbours: (row above/here/below, column shift in the padded row).
+    const TAPS: [(usize, usize); 8] = [(0, 0), (0, 1), (0, 2), (1, 0), (1, 2), (2, 0), (2, 1), (2, 2)];
     tile::for_each_band(&mut out, tile::band_rows(w, 1), |y0, band| {
         let mut padded = [vec![0.0; w + 2], vec![0.0; w + 2], vec![0.0; w + 2]];
+        let mut v: Vec<Vec<f32>> = vec![vec![0.0; w]; 8];
         for (j, out_row) in band.chunks_exact_mut(w).enumerate() {
             let y = (y0 + j) as isize;
             for (dy, p) in padded.iter_mut().enumerate() {
@@ -129,55 +170,25 @@ fn neighbour_median(src: &Plane) -> Plane {
                     .unwrap_or_else(|| unreachable!("mirror always names a row"));
                 tile::pad_row(row, 1, Border::Mirror, p);
             }
-            let [above, here, below] = &padded;
-            for (x, o) in out_row.iter_mut().enumerate() {
-                let mut v = [
-                    above[x],
-                    above[x + 1],
-                    above[x + 2],
-                    here[x],
-                    here[x + 2],
-                    below[x],
-                    below[x + 1],
-                    below[x + 2],
-                ];
-                *o = median8(&mut v);
+            for (buf, &(dy, dx)) in v.iter_mut().zip(&TAPS) {
+                buf.copy_from_slice(&padded[dy][dx..dx + w]);
+            }
+            for (a, b) in NET8 {
+                let (lo, hi) = v.split_at_mut(b);
+                for (p, q) in lo[a].iter_mut().zip(hi[0].iter_mut()) {
+                    let (x, y) = (*p, *q);
+                    // Two independent compare-and-selects, so each maps to one
+                    // vector min or max instruction.
+                    *p = if y < x { y } else { x };
+                    *q = if x > y { x } else { y };
+                }
+            }
+            for ((o, &a), &b) in out_row.iter_mut().zip(&v[3]).zip(&v[4]) {
+                *o = 0.5 * (a + b);
             }
         }
     });
     out
-}
-
-/// The median of eight values: the mean of the 4th and 5th smallest, by a
-/// 19-comparator sorting network (Knuth, TAOCP vol. 3, §5.3.4, n = 8).
-fn median8(v: &mut [f32; 8]) -> f32 {
-    const NET: [(usize, usize); 19] = [
-        (0, 2),
-        (1, 3),
-        (4, 6),
-        (5, 7),
-        (0, 4),
-        (1, 5),
-        (2, 6),
-        (3, 7),
-        (0, 1),
-        (2, 3),
-        (4, 5),
-        (6, 7),
-        (2, 4),
-        (3, 5),
-        (1, 4),
-        (3, 6),
-        (1, 2),
-        (3, 4),
-        (5, 6),
-    ];
-    for (a, b) in NET {
-        let (lo, hi) = (v[a].min(v[b]), v[a].max(v[b]));
-        v[a] = lo;
-        v[b] = hi;
-    }
-    0.5 * (v[3] + v[4])
 }
 
 pub static HOTPIXEL: OpSpec = OpSpec {
@@ -197,9 +208,10 @@ pub static HOTPIXEL: OpSpec = OpSpec {
 
 #[cfg(test)]
 mod tests {
-    //! Edge cases decided here: 1×1 and 1×N planes (mirror names the sample
-    //! itself, so nothing stands out), σ = 0, NaN (always repaired), outliers
-    //! on the border and in corners. Reference: the sorting network against a
+    //! Edge cases decided here: 1×1 planes (mirror makes the sample its own
+    //! neighbour, so nothing stands out) and 1×N planes (the row above and
+    //! below is the row itself), a MAD of 0 (the mean-deviation fallback), NaN
+    //! (always repaired), outliers on the border and in corners. Reference: the sorting network against a
     //! sort; planted outliers on seeded noise.
     use super::*;
     use crate::ops::morph::tests::noise;
@@ -207,12 +219,21 @@ mod tests {
 
     #[test]
     fn network_median_equals_the_sorted_median() {
-        let p = noise(8, 500, 3);
-        for row in p.as_slice().chunks_exact(8) {
-            let mut v: [f32; 8] = row.try_into().unwrap();
-            let mut s = v;
-            s.sort_by(f32::total_cmp);
-            assert_eq!(median8(&mut v), 0.5 * (s[3] + s[4]));
+        let p = noise(37, 23, 3);
+        let m = neighbour_median(&p);
+        let at = |x: isize, y: isize| {
+            let (bx, by) = (Border::Mirror.index(x, 37).unwrap(), Border::Mirror.index(y, 23).unwrap());
+            p.get(bx, by)
+        };
+        for y in 0..23isize {
+            for x in 0..37isize {
+                let mut s: Vec<f32> = [(-1, -1), (0, -1), (1, -1), (-1, 0), (1, 0), (-1, 1), (0, 1), (1, 1)]
+                    .iter()
+                    .map(|&(dx, dy)| at(x + dx, y + dy))
+                    .collect();
+                s.sort_by(f32::total_cmp);
+                assert_eq!(m.get(x as usize, y as usize), 0.5 * (s[3] + s[4]), "({x}, {y})");
+            }
         }
     }
 
@@ -250,10 +271,14 @@ mod tests {
     fn tiny_and_flat_planes() {
         let mut one = Plane::filled(1, 1, 0.5).unwrap();
         assert_eq!(repair_plane(&mut one, 5.0), 0);
+        // MAD 0; mean deviation 0.5/9, σ = 0.0696, 5σ = 0.35 < 0.5: repaired.
         let mut row = Plane::filled(9, 1, 0.5).unwrap();
         row.row_mut(0)[4] = 1.0;
         assert_eq!(repair_plane(&mut row, 5.0), 1);
         assert_eq!(row.row(0)[4], 0.5);
+        // The fallback by hand: |d| = 0 (×6), 1, 1: MAD 0, mean 1/4, σ = √(π/2)/4.
+        let sigma = robust_sigma(&[0.0, 0.0, 1.0, 0.0, 0.0, -1.0, 0.0, 0.0]);
+        assert!((sigma - 0.25 * (std::f64::consts::PI / 2.0).sqrt()).abs() < 1e-12);
         assert!(Hotpixel::new(0.0).is_err());
     }
 }

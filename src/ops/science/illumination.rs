@@ -128,7 +128,7 @@ pub struct Options {
 
 impl Illumination {
     pub fn new(method: Method, radius: f64, o: Options) -> Result<Illumination, ParamError> {
-        if !(radius >= 1.0 && radius <= MAX_ILLUMINATION_RADIUS) {
+        if !(1.0..=MAX_ILLUMINATION_RADIUS).contains(&radius) {
             return Err(ParamError::new(format!(
                 "radius must be in [1, {MAX_ILLUMINATION_RADIUS}], got {radius}"
             )));
@@ -163,16 +163,16 @@ impl Illumination {
             Method::Open | Method::Ball if self.light => {
                 let mut inv = f.clone();
                 invert(&mut inv);
-                let mut b = self.from_below(&inv);
+                let mut b = self.dark_background(&inv);
                 invert(&mut b);
                 b
             }
-            Method::Open | Method::Ball => self.from_below(f),
+            Method::Open | Method::Ball => self.dark_background(f),
         })
     }
 
     /// The background of a dark-background plane: the ball or disk opening.
-    fn from_below(&self, f: &Plane) -> Plane {
+    fn dark_background(&self, f: &Plane) -> Plane {
         match self.method {
             Method::Ball => {
                 let ball =

@@ -344,8 +344,10 @@ disk:   B = {dx² + dy² ≤ r²}
 Square: separable running min/max in constant time per pixel (three comparisons
 per sample and pass for any r): per block of 2r+1 samples a prefix array g and a
 suffix array h, out(x) = min(h(x − r), g(x + r)) (van Herk 1992, Pattern
-Recognition Letters 13(7); Gil & Werman 1993, IEEE PAMI 15(5)); the vertical pass
-works on whole rows. Cross and disk: exact, as a union of row spans — for each
+Recognition Letters 13(7); Gil & Werman 1993, IEEE PAMI 15(5)); per band of rows,
+the horizontal pass fills a band buffer and the vertical pass runs down 256-column
+strips of it with whole row segments as elements, so nothing full-size is stored
+between the passes. Cross and disk: exact, as a union of row spans — for each
 distinct row half-width a the running min/max of width 2a+1 (same block arrays),
 then the min/max over the element's rows; O(r) per pixel.
 Border: `ignore` (default): samples outside the image take no part (as if the

@@ -36,7 +36,7 @@ colour channels (its alpha is ignored); otherwise the step fails naming the file
 Alpha of the image is left as it is. No border, no halo.
 Domain: linear light (the correction is a linear model of the sensor).
 Source: the standard CCD calibration, e.g. Howell, Handbook of CCD Astronomy
-(2nd ed., 2006), §4.5."
+(2nd ed., 2006), ch. 4 (cited from memory)."
     };
 }
 

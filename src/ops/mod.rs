@@ -7,7 +7,9 @@ pub mod edge;
 pub mod filter;
 pub mod geometry;
 pub mod histogram;
+pub mod morph;
 pub mod params;
+pub mod science;
 pub mod threshold;
 pub mod tone;
 

@@ -27,6 +27,9 @@ pub enum Kind {
     Aspect,
     /// A colour (`white`, `black`, `gray`, `#rrggbb`) or `transparent`.
     Colour,
+    /// The path of a file the step reads when it is built (a calibration
+    /// frame), or `none`; held as `None` for `none`.
+    File,
 }
 
 impl Kind {
@@ -61,6 +64,7 @@ impl Kind {
             }
             Kind::Aspect => "an aspect ratio above 0, as W:H or a number (16:9 or 1.5), or none".into(),
             Kind::Colour => "a colour: white, black, gray, #rrggbb or transparent".into(),
+            Kind::File => "a file path (without commas), or none".into(),
         }
     }
 }
@@ -137,6 +141,8 @@ pub enum Value {
     Matrix(Matrix),
     /// An sRGB-encoded colour, or `None` for transparent.
     Colour(Option<[f32; 3]>),
+    /// A file path, or `None` for `none`.
+    File(Option<std::path::PathBuf>),
 }
 
 impl fmt::Display for Value {
@@ -147,6 +153,8 @@ impl fmt::Display for Value {
             Value::Choice(v) => f.write_str(v),
             Value::Matrix(m) => write!(f, "{m}"),
             Value::Colour(None) => f.write_str("transparent"),
+            Value::File(None) => f.write_str("none"),
+            Value::File(Some(p)) => write!(f, "{}", p.display()),
             Value::Colour(Some(c)) => {
                 let [r, g, b] = c.map(|v| (v * 255.0).round() as u8);
                 write!(f, "#{r:02x}{g:02x}{b:02x}")
@@ -253,6 +261,14 @@ impl Args {
         }
     }
 
+    /// A file parameter: `Some` path, or `None` for `none`.
+    pub fn file(&self, name: &str) -> Result<Option<&std::path::Path>, ParamError> {
+        match self.get(name)? {
+            Value::File(p) => Ok(p.as_deref()),
+            other => Err(ParamError::new(format!("internal: `{name}` is {other}, not a file"))),
+        }
+    }
+
     pub fn matrix(&self, name: &str) -> Result<&Matrix, ParamError> {
         match self.get(name)? {
             Value::Matrix(m) => Ok(m),
@@ -341,6 +357,11 @@ fn parse_value(p: &ParamSpec, text: &str) -> Result<Value, ParamError> {
                 .map(|c| Value::Colour(Some(c)))
                 .map_err(|why| ParamError::new(format!("parameter `{}`: {why} or transparent", p.name))),
         },
+        Kind::File => match text.trim() {
+            "" => Err(bad()),
+            "none" => Ok(Value::File(None)),
+            t => Ok(Value::File(Some(std::path::PathBuf::from(t)))),
+        },
         Kind::Matrix => parse_matrix(text)
             .map(Value::Matrix)
             .map_err(|why| ParamError::new(format!("parameter `{}`: {why}", p.name))),
@@ -417,5 +438,15 @@ mod tests {
         assert!(parse_matrix("1 2;;3 4").unwrap_err().contains("row 2 is empty"));
         assert!(parse_matrix("").is_err());
         assert!(parse_matrix("nan").is_err());
+    }
+
+    #[test]
+    fn file_parameters_take_a_path_or_none() {
+        let p = ParamSpec { name: "flat", kind: Kind::File, default: Some("none"), help: "" };
+        assert_eq!(parse_value(&p, "none").unwrap(), Value::File(None));
+        let v = parse_value(&p, " frames/flat.tif ").unwrap();
+        assert_eq!(v, Value::File(Some("frames/flat.tif".into())));
+        assert_eq!(v.to_string(), "frames/flat.tif");
+        assert!(parse_value(&p, "  ").unwrap_err().0.contains("a file path"));
     }
 }

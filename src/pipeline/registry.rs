@@ -3,7 +3,7 @@
 
 use crate::error::Error;
 use crate::ops::params::OpSpec;
-use crate::ops::{colour, edge, filter, geometry, threshold, tone};
+use crate::ops::{colour, edge, filter, geometry, morph, science, threshold, tone};
 
 /// Every operator, in the order `pumice ops` lists them (by family).
 pub static OPERATORS: &[&OpSpec] = &[
@@ -33,6 +33,15 @@ pub static OPERATORS: &[&OpSpec] = &[
     &colour::EXTRACT,
     &colour::BALANCE,
     &threshold::BINARIZE,
+    &morph::ERODE,
+    &morph::DILATE,
+    &morph::OPEN,
+    &morph::CLOSE,
+    &morph::TOPHAT,
+    &science::BIN,
+    &science::HOTPIXEL,
+    &science::FLATFIELD,
+    &science::ILLUMINATION,
 ];
 
 /// The operator called `name`, or an error suggesting the nearest name.

@@ -14,6 +14,7 @@ mod filters;
 mod fuzz_corpus;
 mod hostile;
 mod measure;
+mod morph;
 mod orientation;
 mod reference;
 mod resample;

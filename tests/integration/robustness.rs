@@ -38,6 +38,7 @@ fn some_value(kind: &Kind) -> String {
         Kind::Ratio { .. } => "0.5".into(),
         Kind::Aspect => "1:1".into(),
         Kind::Colour => "white".into(),
+        Kind::File => frame_path(),
     }
 }
 
@@ -48,7 +49,9 @@ fn variants(spec: &OpSpec) -> Vec<Vec<(Option<String>, String)>> {
     let mut base: Vec<(Option<String>, String)> =
         extra.iter().map(|(k, v)| (Some(k.to_string()), v.to_string())).collect();
     for p in spec.params {
-        if p.default.is_none() && !extra.iter().any(|(k, _)| *k == p.name) {
+        // File parameters always get the test frame, so file-reading steps do real work.
+        let is_file = matches!(p.kind, Kind::File);
+        if (p.default.is_none() || is_file) && !extra.iter().any(|(k, _)| *k == p.name) {
             base.push((Some(p.name.into()), some_value(&p.kind)));
         }
     }
@@ -66,6 +69,22 @@ fn variants(spec: &OpSpec) -> Vec<Vec<(Option<String>, String)>> {
         }
     }
     out
+}
+
+/// A 2×2 gray 16-bit PNG frame for file parameters (flat and dark frames): it
+/// matches the 2×2 gray test image and mismatches the others, so both the
+/// work and the refusal are exercised.
+fn frame_path() -> String {
+    static PATH: std::sync::OnceLock<String> = std::sync::OnceLock::new();
+    PATH.get_or_init(|| {
+        let p = Plane::from_vec(2, 2, vec![0.5, 0.6, 0.7, 0.8]).unwrap();
+        let r = Raster::new(vec![p], Layout::Gray, Encoding::Linear).unwrap();
+        let bytes = pumice::io::encode(&r, &pumice::io::EncodeOptions::new(pumice::io::Format::Png)).unwrap();
+        let path = std::env::temp_dir().join(format!("pumice-robustness-frame-{}.png", std::process::id()));
+        std::fs::write(&path, bytes).unwrap();
+        path.display().to_string()
+    })
+    .clone()
 }
 
 fn raster(w: usize, h: usize, layout: Layout, encoding: Encoding) -> Raster {
@@ -114,6 +133,7 @@ fn every_operator_survives_degenerate_images_with_every_parameter_choice() {
         assert!(built_any, "`{}` could not be built from its defaults; add it to EXTRA", spec.name);
     }
     assert!(panics.is_empty(), "{} of {runs} runs panicked:\n{}", panics.len(), panics.join("\n"));
+    let _ = std::fs::remove_file(frame_path());
     // Most runs must do real work, not stop at a refusal, or the sweep proves little.
     assert!(runs > 1000 && succeeded * 4 > runs * 3, "{succeeded} of {runs} runs succeeded");
 }

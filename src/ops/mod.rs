@@ -8,6 +8,7 @@ pub mod filter;
 pub mod geometry;
 pub mod histogram;
 pub mod params;
+pub mod scan;
 pub mod threshold;
 pub mod tone;
 

@@ -3,7 +3,7 @@
 
 use crate::error::Error;
 use crate::ops::params::OpSpec;
-use crate::ops::{colour, edge, filter, geometry, threshold, tone};
+use crate::ops::{colour, edge, filter, geometry, scan, threshold, tone};
 
 /// Every operator, in the order `pumice ops` lists them (by family).
 pub static OPERATORS: &[&OpSpec] = &[
@@ -33,6 +33,9 @@ pub static OPERATORS: &[&OpSpec] = &[
     &colour::EXTRACT,
     &colour::BALANCE,
     &threshold::BINARIZE,
+    &scan::DESKEW,
+    &scan::AUTOCROP,
+    &scan::DUST,
 ];
 
 /// The operator called `name`, or an error suggesting the nearest name.

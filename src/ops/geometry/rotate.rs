@@ -40,6 +40,12 @@ pub fn build(angle: f64, a: &Args) -> Result<Box<dyn Operator>, ParamError> {
 }
 
 impl Rotate {
+    /// A turn by `degrees` clockwise with `filter` (nearest, bilinear or
+    /// bicubic), for operators that turn images as one part of their work.
+    pub fn new(degrees: f64, filter: Filter, expand: bool, fill: Option<[f32; 3]>) -> Rotate {
+        Rotate { radians: degrees.to_radians(), filter, expand, fill }
+    }
+
     fn size(&self, w: usize, h: usize) -> (usize, usize) {
         if !self.expand {
             return (w, h);

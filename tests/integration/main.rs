@@ -11,4 +11,5 @@ mod filters;
 mod orientation;
 mod reference;
 mod resample;
+mod scan;
 mod tone;

@@ -1,5 +1,5 @@
 #!/usr/bin/env bash
-# Runs the three demo recipes on the three demo images.
+# Runs the demo recipes on the demo images.
 #
 #   demo-images/run-demo.sh [OUTPUT-FOLDER]     (default: demo-output/)
 #
@@ -25,3 +25,4 @@ demo() {
 demo diatom-slide.tif micrograph.toml diatom-slide-clean.tif
 demo ledger-page.png ledger.toml ledger-page-clean.png
 demo harbour-photo.jpg photo.toml harbour-web.jpg
+demo order-form-scan.png scan-cleanup.toml order-form-clean.png

@@ -24,6 +24,9 @@ mode=content: the background B is the per-plane median of the four outermost
     (clipped to the image).
 ```
 
+Paper margins as even as the tolerance are border too: keep the tolerance
+below the paper's own variation (a few hundredths for a scan of real paper)
+to remove only a lid or film edge, or use mode=content with a margin.
 A uniform image (nothing but border, or no content) is kept whole, and a side
 never takes the last row or column. NaN samples count as content. Alpha is
 cut with the colour planes but not compared. The kept rectangle goes to the
@@ -204,7 +207,7 @@ pub static AUTOCROP: OpSpec = OpSpec {
         ParamSpec {
             name: "tolerance",
             kind: Kind::real(0.0, 1.0),
-            default: Some("0.1"),
+            default: Some("0.05"),
             help: "largest difference from the border colour that still counts as border",
         },
         ParamSpec {

@@ -114,8 +114,8 @@ fn reduce(p: &Plane, f: usize) -> Result<Plane, Error> {
             let rows = (y..(y + f).min(h)).len();
             sums.iter_mut().for_each(|s| *s = 0.0);
             for sy in y..y + rows {
-                for (x, &v) in p.row(sy).iter().enumerate() {
-                    sums[x / f] += v;
+                for (s, cell) in sums.iter_mut().zip(p.row(sy).chunks(f)) {
+                    *s += cell.iter().sum::<f32>();
                 }
             }
             for (x, o) in row.iter_mut().enumerate() {

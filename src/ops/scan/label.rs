@@ -83,26 +83,27 @@ pub fn label(mask: &[bool], width: usize, height: usize) -> Result<Labels, Error
     // parent[0] is the background; provisional labels start at 1.
     let mut parent: Vec<u32> = vec![0];
     for y in 0..height {
-        let row = y * width;
+        let (done, rest) = labels.split_at_mut(y * width);
+        let above = if y == 0 { None } else { Some(&done[(y - 1) * width..]) };
+        let row = &mut rest[..width];
+        let m = &mask[y * width..(y + 1) * width];
         for x in 0..width {
-            if !mask[row + x] {
+            if !m[x] {
                 continue;
             }
-            let at = |dx: isize, dy: isize, labels: &[u32]| -> u32 {
-                let (nx, ny) = (x as isize + dx, y as isize + dy);
-                if nx < 0 || ny < 0 || nx >= width as isize {
-                    0
-                } else {
-                    labels[ny as usize * width + nx as usize]
+            let up = |dx: isize| -> u32 {
+                let nx = x as isize + dx;
+                match above {
+                    Some(a) if nx >= 0 && (nx as usize) < width => a[nx as usize],
+                    _ => 0,
                 }
             };
-            let b = at(0, -1, &labels);
+            let b = up(0);
             let l = if b != 0 {
                 b
             } else {
-                let c = at(1, -1, &labels);
-                let a = at(-1, -1, &labels);
-                let d = at(-1, 0, &labels);
+                let (c, a) = (up(1), up(-1));
+                let d = if x > 0 { row[x - 1] } else { 0 };
                 if c != 0 {
                     if a != 0 {
                         union(&mut parent, c, a)
@@ -121,7 +122,7 @@ pub fn label(mask: &[bool], width: usize, height: usize) -> Result<Labels, Error
                     n
                 }
             };
-            labels[row + x] = l;
+            row[x] = l;
         }
     }
     // Final labels: roots in increasing provisional order get 1, 2, …

@@ -1004,7 +1004,8 @@ fn order_form(rng: &mut Rng) -> (Vec<Glyph>, Vec<Glyph>) {
     rules.push(rule(120.0, 1080.0, 175.0, 181.0));
     // Two short address lines.
     for k in 0..3 {
-        typed_line(rng, &mut glyphs, 140.0, 140.0 + rng.range(260.0, 520.0), 230.0 + 30.0 * k as f64);
+        let end = 140.0 + rng.range(260.0, 520.0);
+        typed_line(rng, &mut glyphs, 140.0, end, 230.0 + 30.0 * k as f64);
     }
     // The order table: a ruled grid of 26 rows, columns for quantity, item, price.
     let (top, pitch, rows) = (360.0, 36.0, 26);
@@ -1021,9 +1022,10 @@ fn order_form(rng: &mut Rng) -> (Vec<Glyph>, Vec<Glyph>) {
             continue;
         }
         let base = top + (r + 1) as f64 * pitch - 10.0;
-        typed_line(rng, &mut glyphs, 140.0, 140.0 + rng.range(30.0, 60.0), base);
-        typed_line(rng, &mut glyphs, 240.0, 240.0 + rng.range(180.0, 590.0), base);
-        typed_line(rng, &mut glyphs, 900.0, 900.0 + rng.range(70.0, 160.0), base);
+        for (x, lo, hi) in [(140.0, 30.0, 60.0), (240.0, 180.0, 590.0), (900.0, 70.0, 160.0)] {
+            let end = x + rng.range(lo, hi);
+            typed_line(rng, &mut glyphs, x, end, base);
+        }
     }
     // A closing paragraph below the table.
     for k in 0..4 {
@@ -1032,6 +1034,11 @@ fn order_form(rng: &mut Rng) -> (Vec<Glyph>, Vec<Glyph>) {
     }
     glyphs.sort_by(|a, b| a.y0.total_cmp(&b.y0));
     (glyphs, rules)
+}
+
+/// The ink of the first box of `set` covering (u, v), if any.
+fn ink_at(set: &[Glyph], u: f64, v: f64) -> Option<f64> {
+    set.iter().find(|g| u >= g.x0 && u < g.x1 && v >= g.y0 && v < g.y1).map(|g| g.ink)
 }
 
 fn scan_form(dir: &Path) -> Result<()> {
@@ -1052,8 +1059,6 @@ fn scan_form(dir: &Path) -> Result<()> {
     let (sin, cos) = FORM_SKEW_DEG.to_radians().sin_cos();
     let (cx, cy) = (FW as f64 / 2.0, FH as f64 / 2.0);
     let sub = subsamples(2);
-    let covered =
-        |set: &[Glyph], u: f64, v: f64| set.iter().find(|g| u >= g.x0 && u < g.x1 && v >= g.y0 && v < g.y1);
     let mut pixels = Vec::with_capacity(FW * FH);
     for y in 0..FH {
         for x in 0..FW {
@@ -1073,8 +1078,8 @@ fn scan_form(dir: &Path) -> Result<()> {
                 let mut r = 0.78 * (1.0 + 0.04 * mottle.at(u, v)) * (1.0 - 0.10 * (u / FW as f64));
                 let first = glyphs.partition_point(|g| g.y0 < v - 17.0);
                 let near = &glyphs[first..glyphs.partition_point(|g| g.y0 <= v)];
-                if let Some(g) = covered(near, u, v).or_else(|| covered(&rules, u, v)) {
-                    r *= g.ink;
+                if let Some(ink) = ink_at(near, u, v).or_else(|| ink_at(&rules, u, v)) {
+                    r *= ink;
                 }
                 acc += r;
             }
@@ -1085,7 +1090,7 @@ fn scan_form(dir: &Path) -> Result<()> {
             }
             // Uneven lamp: darker towards the bottom right.
             r *= 1.0 - 0.12 * (px / FW as f64) * (py / FH as f64);
-            pixels.push(to_u8(srgb_encode(r) + 0.008 * rng.normal()));
+            pixels.push(to_u8(srgb_encode(r) + 0.004 * rng.normal()));
         }
     }
     let mut out = Vec::new();

@@ -482,6 +482,15 @@ mod tests {
     }
 
     #[test]
+    fn a_large_page_is_found_through_the_reduced_and_pooled_copies() {
+        // 1800×2400: reduced by 2, then pooled by 3 for the coarse search, where
+        // the 24-pixel line pitch is only 4 cells.
+        let e = measure_skew(&page(1800, 2400, -1.7, 0.9, 0.1), 10.0).unwrap();
+        assert!((e.degrees.expect("found") + 1.7).abs() < 0.05, "{e:?}");
+        assert!(e.confidence >= 1.5, "{e:?}");
+    }
+
+    #[test]
     fn noise_and_blank_pages_have_no_skew_and_are_left_alone() {
         for seed in [1, 2, 3] {
             let e = measure_skew(&noise(400, 300, seed), 10.0).unwrap();

@@ -67,6 +67,7 @@ impl Rotate {
             Filter::Bilinear => 1,
             _ => 2,
         };
+        let taps = 2 * radius as usize;
         let at = |i: isize, j: isize| -> f32 {
             if i < 0 || j < 0 || i >= w as isize || j >= h as isize {
                 fill
@@ -86,16 +87,32 @@ impl Rotate {
                         *o = at((sx + 0.5).floor() as isize, (sy + 0.5).floor() as isize);
                         continue;
                     }
-                    let (x0, y0f) = (sx.floor() as isize, sy.floor() as isize);
+                    // The taps are columns i0.. and rows j0..; the column weights are the
+                    // same for every row, and inside the image the row is read as a slice.
+                    let (i0, j0) = (sx.floor() as isize - radius + 1, sy.floor() as isize - radius + 1);
+                    let mut wx = [0.0f64; 4];
+                    for (k, wk) in wx[..taps].iter_mut().enumerate() {
+                        *wk = self.filter.eval(sx - (i0 + k as isize) as f64);
+                    }
+                    let inside = i0 >= 0
+                        && j0 >= 0
+                        && i0 + taps as isize <= w as isize
+                        && j0 + taps as isize <= h as isize;
                     let mut acc = 0.0f64;
-                    for j in (y0f - radius + 1)..=(y0f + radius) {
+                    for j in j0..j0 + taps as isize {
                         let wy = self.filter.eval(sy - j as f64);
                         if wy == 0.0 {
                             continue;
                         }
-                        for i in (x0 - radius + 1)..=(x0 + radius) {
-                            let wx = self.filter.eval(sx - i as f64);
-                            acc += wx * wy * f64::from(at(i, j));
+                        if inside {
+                            let row = &src.row(j as usize)[i0 as usize..i0 as usize + taps];
+                            for (wk, &v) in wx[..taps].iter().zip(row) {
+                                acc += wk * wy * f64::from(v);
+                            }
+                        } else {
+                            for (k, wk) in wx[..taps].iter().enumerate() {
+                                acc += wk * wy * f64::from(at(i0 + k as isize, j));
+                            }
                         }
                     }
                     *o = acc as f32;

@@ -532,6 +532,28 @@ mod tests {
     }
 
     #[test]
+    fn colour_pages_are_measured_on_luma_and_filled_with_their_paper_colour() {
+        // Cream paper (0.95, 0.9, 0.8) with dark blue ink, in linear light.
+        let shape = page(300, 240, 2.0, 1.0, 0.0);
+        let plane = |paper: f32, ink: f32| {
+            Plane::from_vec(300, 240, shape.as_slice().iter().map(|&m| ink + (paper - ink) * m).collect())
+                .unwrap()
+        };
+        let planes = vec![plane(0.95, 0.1), plane(0.9, 0.1), plane(0.8, 0.3)];
+        let r = Raster::new(planes, Layout::Rgb, Encoding::Linear).unwrap();
+        let out = crate::pipeline::Step::parse("deskew").unwrap().op.apply(r).unwrap();
+        assert_eq!(out.layout(), Layout::Rgb);
+        let NoteValue::Number { value, .. } = out.metadata.notes[0].value else {
+            panic!("{:?}", out.metadata.notes)
+        };
+        assert!((value - 2.0).abs() < 0.1, "{value}");
+        // The uncovered corner is the paper colour (through an sRGB round trip of the fill).
+        for (p, want) in out.planes().iter().zip([0.95, 0.9, 0.8]) {
+            assert!((p.get(0, 0) - want).abs() < 1e-3, "{} vs {want}", p.get(0, 0));
+        }
+    }
+
+    #[test]
     fn bad_parameters_are_errors() {
         assert!(crate::pipeline::Step::parse("deskew:0").is_err());
         assert!(crate::pipeline::Step::parse("deskew:50").is_err());

@@ -58,6 +58,22 @@ impl Rotate {
     }
 
     fn sample(&self, src: &Plane, out_w: usize, out_h: usize, fill: f32) -> Result<Plane, Error> {
+        // One copy of the loop per kernel, so the kernel's `match` is decided once.
+        match self.filter {
+            Filter::Bilinear => self.sample_with(src, out_w, out_h, fill, |x| Filter::Bilinear.eval(x)),
+            Filter::Bicubic => self.sample_with(src, out_w, out_h, fill, |x| Filter::Bicubic.eval(x)),
+            f => self.sample_with(src, out_w, out_h, fill, |x| f.eval(x)),
+        }
+    }
+
+    fn sample_with(
+        &self,
+        src: &Plane,
+        out_w: usize,
+        out_h: usize,
+        fill: f32,
+        kernel: impl Fn(f64) -> f64 + Sync,
+    ) -> Result<Plane, Error> {
         let (w, h) = (src.width(), src.height());
         let (s, c) = self.radians.sin_cos();
         let (icx, icy) = (w as f64 / 2.0, h as f64 / 2.0);
@@ -92,7 +108,7 @@ impl Rotate {
                     let (i0, j0) = (sx.floor() as isize - radius + 1, sy.floor() as isize - radius + 1);
                     let mut wx = [0.0f64; 4];
                     for (k, wk) in wx[..taps].iter_mut().enumerate() {
-                        *wk = self.filter.eval(sx - (i0 + k as isize) as f64);
+                        *wk = kernel(sx - (i0 + k as isize) as f64);
                     }
                     let inside = i0 >= 0
                         && j0 >= 0
@@ -100,7 +116,7 @@ impl Rotate {
                         && j0 + taps as isize <= h as isize;
                     let mut acc = 0.0f64;
                     for j in j0..j0 + taps as isize {
-                        let wy = self.filter.eval(sy - j as f64);
+                        let wy = kernel(sy - j as f64);
                         if wy == 0.0 {
                             continue;
                         }

@@ -21,7 +21,7 @@ The angle is reported in the run notes (`pumice run -v`): skew = how far the
 content is turned clockwise, in degrees; the step turns it by −skew.
 
 ```text
-reduce:  box mean by f = ⌈max(w, h) / 1800⌉; ink = the smaller Otsu class
+reduce:  box mean by f = ⌈max(w, h) / 1200⌉; ink = the smaller Otsu class
          (Otsu 1979 on the reduced luma), so dark-on-light and light-on-dark both work;
          ink weight m = 1 at the ink mean, 0 halfway from the threshold to the
          paper mean, linear between (edges keep their sub-pixel place)
@@ -61,7 +61,7 @@ this project's measurement, no published source."
 }
 
 /// Long side of the reduced copy the fine search works on, in pixels.
-const FINE_SIDE: usize = 1800;
+const FINE_SIDE: usize = 1200;
 /// Long side of the pooled mask the coarse search works on, in pixels.
 const COARSE_SIDE: usize = 400;
 /// Step of the fine search, in degrees.

@@ -18,7 +18,8 @@ macro_rules! deskew_doc {
         "Finds the angle of the text lines and ruled lines of a page within
 ±max-angle degrees and turns the page back by it (apply=false only measures).
 The angle is reported in the run notes (`pumice run -v`): skew = how far the
-content is turned clockwise, in degrees; the step turns it by −skew.
+content is turned clockwise, in degrees to 3 decimals, and the confidence
+ratio below; the step turns the page by −skew (the unrounded angle).
 
 ```text
 reduce:  box mean by f = ⌈max(w, h) / 1200⌉; ink = the smaller Otsu class
@@ -379,16 +380,18 @@ impl Operator for Deskew {
         let (estimate, mask) = measure(&gray, self.max_angle)?;
         let mut raster = raster;
         let note = |name, value| Note { operator: "deskew", name, value };
+        // Notes are rounded to what the measurement resolves (about 0.01°).
         match estimate.degrees {
-            Some(d) => {
-                raster.metadata.notes.push(note("skew", NoteValue::Number { value: d, unit: "degrees" }))
-            }
+            Some(d) => raster.metadata.notes.push(note(
+                "skew",
+                NoteValue::Number { value: (d * 1000.0).round() / 1000.0, unit: "degrees" },
+            )),
             None => raster.metadata.notes.push(note("skew", NoteValue::Text("no skew found".into()))),
         }
-        raster
-            .metadata
-            .notes
-            .push(note("confidence", NoteValue::Number { value: estimate.confidence, unit: "" }));
+        raster.metadata.notes.push(note(
+            "confidence",
+            NoteValue::Number { value: (estimate.confidence * 100.0).round() / 100.0, unit: "" },
+        ));
         let (Some(degrees), Some(ink), true) = (estimate.degrees, mask, self.apply) else {
             return Ok(raster);
         };

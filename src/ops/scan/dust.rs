@@ -28,7 +28,9 @@ uses the two-pass labelling (pumice::ops::scan::label::label). Other planes
 use the union-find area filter (label::area_filter). Each colour plane is
 filtered on its own; alpha is kept. Output samples are input samples, so the
 result is the same in any encoding and exact codes stay exact. NaN samples
-separate components and are kept. The run notes count the pixels changed.
+separate components and are kept. The run notes count the samples changed;
+on a noisy gray page that count includes the noise dips smaller than the
+area, which the closing flattens as well (by a code or two).
 Domain: any (samples are moved, not mixed). No halo: whole-image operator.
 Sources: L. Vincent, \"Morphological area openings and closings for
 grey-scale images\", NATO Shape in Picture workshop, 1993; A. Meijster and

@@ -26,6 +26,7 @@ demo() {
 demo diatom-slide.tif micrograph.toml diatom-slide-clean.tif
 demo ledger-page.png ledger.toml ledger-page-clean.png
 demo harbour-photo.jpg photo.toml harbour-web.jpg
+demo order-form-scan.png scan-cleanup.toml order-form-clean.png
 
 pumice run "$here" -o "$out/proofs/" -r "$here/recipes/proofs.toml" --overwrite --report "$out/proofs/report.json"
 echo "demo-images/ -> $out/proofs/ (recipes/proofs.toml, report in $out/proofs/report.json)"

@@ -6,7 +6,8 @@
 //!
 //! The scenario is invented: a small lab images an imaginary diatom slide under
 //! a brightfield microscope and also digitises an old ledger; someone took a
-//! phone photo of the harbour outside at dusk. Every image is rendered here
+//! phone photo of the harbour outside at dusk; the allotment society next door
+//! scanned a typed order form, crooked, with the lid ajar. Every image is rendered here
 //! from a fixed seed (splitmix64 + Box–Muller) on one thread, so the files are
 //! the same on every run (and on every machine whose maths library rounds
 //! `exp`, `sin` and `powf` the same way).
@@ -18,6 +19,7 @@
 //! | `diatom-flat.tif`  | 512×384 16-bit gray, linear: flat frame (the same illumination without specimen, bias and hot pixels included; mean of 16 exposures) |
 //! | `ledger-page.png`  | 600×800 8-bit gray: ruled ledger page with handwriting-like entries, skewed by 2.3°, dust specks, 100 dpi |
 //! | `harbour-photo.jpg`| 480×320 upright RGB dusk scene, stored sideways (320×480) with EXIF orientation 6, 300 dpi |
+//! | `order-form-scan.png` | 1200×1600 8-bit gray: a typed seed order form of an imaginary allotment society, scanned turned 3.1° anticlockwise, scanner lid along the left and bottom, dust, uneven lamp, 150 dpi |
 //!
 //! The sensor model of the micrograph (all in ADU, analogue-to-digital units):
 //! `raw = bias + (E·V·T + D)/g + hot + noise`, with `E` the electrons a pixel
@@ -37,6 +39,7 @@ fn main() -> Result<()> {
     micrographs(&dir)?;
     ledger(&dir)?;
     harbour(&dir)?;
+    scan_form(&dir)?;
     Ok(())
 }
 
@@ -945,4 +948,166 @@ fn harbour(dir: &Path) -> Result<()> {
     enc.add_exif_metadata(&pumice::io::exif::minimal_with_orientation(6, false))?;
     enc.encode(&stored, sw as u16, sh as u16, ColorType::Rgb)?;
     write_file(dir, "harbour-photo.jpg", &out, "stored 320x480, EXIF orientation 6 (upright 480x320)")
+}
+
+// ---------------------------------------------------------------------------
+// Scanned order form
+
+/// Scan size, pixels (150 dpi).
+const FW: usize = 1200;
+const FH: usize = 1600;
+/// How far the form is turned clockwise in the scan, degrees (negative: anticlockwise).
+const FORM_SKEW_DEG: f64 = -3.1;
+/// The scanner lid showing along the left and bottom edges of the scan, pixels.
+const LID_LEFT: usize = 36;
+const LID_BOTTOM: usize = 48;
+
+/// One typed glyph: a box on the form, in form coordinates, with its ink.
+#[derive(Clone, Copy)]
+struct Glyph {
+    x0: f64,
+    x1: f64,
+    y0: f64,
+    y1: f64,
+    ink: f64,
+}
+
+/// A typed line: glyph boxes of a worn typewriter (x-height 11 px, some taller
+/// ones, 2–3 px between glyphs), words of 2–9 glyphs, in lines of 30 px.
+fn typed_line(rng: &mut Rng, glyphs: &mut Vec<Glyph>, x: f64, end: f64, base: f64) {
+    let mut x = x;
+    while x < end - 20.0 {
+        let letters = rng.int(2, 10);
+        for _ in 0..letters {
+            let w = rng.range(6.0, 9.5);
+            if x + w > end {
+                break;
+            }
+            let tall = rng.chance(0.3);
+            let y0 = base - if tall { 16.0 } else { 11.0 };
+            let ink = rng.range(0.06, 0.16); // the ribbon is uneven
+            glyphs.push(Glyph { x0: x, x1: x + w, y0, y1: base, ink });
+            x += w + rng.range(2.0, 3.2);
+        }
+        x += rng.range(9.0, 14.0);
+    }
+}
+
+/// The form's typed text and its rules (horizontal and vertical boxes), in
+/// form coordinates (the form is FW × FH like the scan, before the turn).
+fn order_form(rng: &mut Rng) -> (Vec<Glyph>, Vec<Glyph>) {
+    let mut glyphs = Vec::new();
+    let mut rules = Vec::new();
+    let rule = |x0: f64, x1: f64, y0: f64, y1: f64| Glyph { x0, x1, y0, y1, ink: 0.12 };
+    // Heading and a thick bar under it.
+    typed_line(rng, &mut glyphs, 300.0, 900.0, 150.0);
+    rules.push(rule(120.0, 1080.0, 175.0, 181.0));
+    // Two short address lines.
+    for k in 0..3 {
+        let end = 140.0 + rng.range(260.0, 520.0);
+        typed_line(rng, &mut glyphs, 140.0, end, 230.0 + 30.0 * k as f64);
+    }
+    // The order table: a ruled grid of 26 rows, columns for quantity, item, price.
+    let (top, pitch, rows) = (360.0, 36.0, 26);
+    for r in 0..=rows {
+        let y = top + r as f64 * pitch;
+        rules.push(rule(120.0, 1080.0, y, y + 2.0));
+    }
+    let bottom = top + rows as f64 * pitch + 2.0;
+    for x in [120.0, 220.0, 860.0, 1078.0] {
+        rules.push(rule(x, x + 2.0, top, bottom));
+    }
+    for r in 0..rows {
+        if !rng.chance(0.8) {
+            continue;
+        }
+        let base = top + (r + 1) as f64 * pitch - 10.0;
+        for (x, lo, hi) in [(140.0, 30.0, 60.0), (240.0, 180.0, 590.0), (900.0, 70.0, 160.0)] {
+            let end = x + rng.range(lo, hi);
+            typed_line(rng, &mut glyphs, x, end, base);
+        }
+    }
+    // A closing paragraph below the table.
+    for k in 0..4 {
+        let end = if k == 3 { 640.0 } else { 1060.0 };
+        typed_line(rng, &mut glyphs, 140.0, end, bottom + 60.0 + 30.0 * k as f64);
+    }
+    glyphs.sort_by(|a, b| a.y0.total_cmp(&b.y0));
+    (glyphs, rules)
+}
+
+/// The ink of the first box of `set` covering (u, v), if any.
+fn ink_at(set: &[Glyph], u: f64, v: f64) -> Option<f64> {
+    set.iter().find(|g| u >= g.x0 && u < g.x1 && v >= g.y0 && v < g.y1).map(|g| g.ink)
+}
+
+fn scan_form(dir: &Path) -> Result<()> {
+    let mut rng = Rng::new(0x_0DE5_0F0E_0003);
+    let (glyphs, rules) = order_form(&mut rng);
+    let mottle = ValueNoise::new(&mut rng, FW as f64, FH as f64, 40.0);
+    // Dust on the glass, in scan coordinates: (x, y, radius, darkness).
+    let dust: Vec<(f64, f64, f64, f64)> = (0..70)
+        .map(|_| {
+            (
+                rng.range(LID_LEFT as f64, FW as f64),
+                rng.range(0.0, (FH - LID_BOTTOM) as f64),
+                rng.range(0.5, 1.5),
+                rng.range(0.5, 0.9),
+            )
+        })
+        .collect();
+    let (sin, cos) = FORM_SKEW_DEG.to_radians().sin_cos();
+    let (cx, cy) = (FW as f64 / 2.0, FH as f64 / 2.0);
+    let sub = subsamples(2);
+    let mut pixels = Vec::with_capacity(FW * FH);
+    for y in 0..FH {
+        for x in 0..FW {
+            let (px, py) = (x as f64 + 0.5, y as f64 + 0.5);
+            if x < LID_LEFT || y >= FH - LID_BOTTOM {
+                // The black scanner lid: nearly uniform.
+                pixels.push(to_u8(0.07 + 0.004 * rng.normal()));
+                continue;
+            }
+            let mut acc = 0.0;
+            for &(ox, oy) in &sub {
+                let (dx, dy) = (x as f64 + ox - cx, y as f64 + oy - cy);
+                // Scan → form: undo the clockwise turn by FORM_SKEW_DEG.
+                let u = cos * dx + sin * dy + cx;
+                let v = -sin * dx + cos * dy + cy;
+                // Cream paper, yellowing towards the right edge, with mottling.
+                let mut r = 0.78 * (1.0 + 0.04 * mottle.at(u, v)) * (1.0 - 0.10 * (u / FW as f64));
+                let first = glyphs.partition_point(|g| g.y0 < v - 17.0);
+                let near = &glyphs[first..glyphs.partition_point(|g| g.y0 <= v)];
+                if let Some(ink) = ink_at(near, u, v).or_else(|| ink_at(&rules, u, v)) {
+                    r *= ink;
+                }
+                acc += r;
+            }
+            let mut r = acc / sub.len() as f64;
+            for &(dx0, dy0, rad, dark) in &dust {
+                let d = ((px - dx0).powi(2) + (py - dy0).powi(2)).sqrt();
+                r *= 1.0 - dark * (1.0 - smoothstep(rad - 0.5, rad + 0.5, d));
+            }
+            // Uneven lamp: darker towards the bottom right.
+            r *= 1.0 - 0.12 * (px / FW as f64) * (py / FH as f64);
+            pixels.push(to_u8(srgb_encode(r) + 0.004 * rng.normal()));
+        }
+    }
+    let mut out = Vec::new();
+    let mut info = png::Info::with_size(FW as u32, FH as u32);
+    info.color_type = png::ColorType::Grayscale;
+    info.bit_depth = png::BitDepth::Eight;
+    // 150 dpi = 150 / 0.0254 = 5905.5 pixels per metre.
+    info.pixel_dims = Some(png::PixelDimensions { xppu: 5906, yppu: 5906, unit: png::Unit::Meter });
+    let mut encoder = png::Encoder::with_info(&mut out, info)?;
+    encoder.set_compression(png::Compression::High);
+    let mut writer = encoder.write_header()?;
+    writer.write_image_data(&pixels)?;
+    writer.finish()?;
+    write_file(
+        dir,
+        "order-form-scan.png",
+        &out,
+        "1200x1600 gray8, skew -3.1 deg, scanner lid left 36 px and bottom 48 px, dust, 150 dpi",
+    )
 }

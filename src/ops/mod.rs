@@ -9,6 +9,7 @@ pub mod geometry;
 pub mod histogram;
 pub mod morph;
 pub mod params;
+pub mod scan;
 pub mod science;
 pub mod threshold;
 pub mod tone;

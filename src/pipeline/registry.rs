@@ -3,7 +3,7 @@
 
 use crate::error::Error;
 use crate::ops::params::OpSpec;
-use crate::ops::{colour, edge, filter, geometry, morph, science, threshold, tone};
+use crate::ops::{colour, edge, filter, geometry, morph, scan, science, threshold, tone};
 
 /// Every operator, in the order `pumice ops` lists them (by family).
 pub static OPERATORS: &[&OpSpec] = &[
@@ -42,6 +42,9 @@ pub static OPERATORS: &[&OpSpec] = &[
     &science::HOTPIXEL,
     &science::FLATFIELD,
     &science::ILLUMINATION,
+    &scan::DESKEW,
+    &scan::AUTOCROP,
+    &scan::DUST,
 ];
 
 /// The operator called `name`, or an error suggesting the nearest name.

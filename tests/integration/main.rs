@@ -19,4 +19,5 @@ mod orientation;
 mod reference;
 mod resample;
 mod robustness;
+mod scan;
 mod tone;

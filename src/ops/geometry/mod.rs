@@ -11,6 +11,7 @@ mod rotate;
 pub use anchor::Anchor;
 pub use pad::PAD;
 pub use resize::RESIZE;
+pub use rotate::Rotate;
 
 use crate::error::{Error, ParamError};
 use crate::ops::params::{Args, Kind, OpSpec, ParamSpec};

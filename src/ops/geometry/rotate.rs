@@ -40,6 +40,12 @@ pub fn build(angle: f64, a: &Args) -> Result<Box<dyn Operator>, ParamError> {
 }
 
 impl Rotate {
+    /// A turn by `degrees` clockwise with `filter` (nearest, bilinear or
+    /// bicubic), for operators that turn images as one part of their work.
+    pub fn new(degrees: f64, filter: Filter, expand: bool, fill: Option<[f32; 3]>) -> Rotate {
+        Rotate { radians: degrees.to_radians(), filter, expand, fill }
+    }
+
     fn size(&self, w: usize, h: usize) -> (usize, usize) {
         if !self.expand {
             return (w, h);
@@ -52,6 +58,22 @@ impl Rotate {
     }
 
     fn sample(&self, src: &Plane, out_w: usize, out_h: usize, fill: f32) -> Result<Plane, Error> {
+        // One copy of the loop per kernel, so the kernel's `match` is decided once.
+        match self.filter {
+            Filter::Bilinear => self.sample_with(src, out_w, out_h, fill, |x| Filter::Bilinear.eval(x)),
+            Filter::Bicubic => self.sample_with(src, out_w, out_h, fill, |x| Filter::Bicubic.eval(x)),
+            f => self.sample_with(src, out_w, out_h, fill, |x| f.eval(x)),
+        }
+    }
+
+    fn sample_with(
+        &self,
+        src: &Plane,
+        out_w: usize,
+        out_h: usize,
+        fill: f32,
+        kernel: impl Fn(f64) -> f64 + Sync,
+    ) -> Result<Plane, Error> {
         let (w, h) = (src.width(), src.height());
         let (s, c) = self.radians.sin_cos();
         let (icx, icy) = (w as f64 / 2.0, h as f64 / 2.0);
@@ -61,6 +83,7 @@ impl Rotate {
             Filter::Bilinear => 1,
             _ => 2,
         };
+        let taps = 2 * radius as usize;
         let at = |i: isize, j: isize| -> f32 {
             if i < 0 || j < 0 || i >= w as isize || j >= h as isize {
                 fill
@@ -80,16 +103,32 @@ impl Rotate {
                         *o = at((sx + 0.5).floor() as isize, (sy + 0.5).floor() as isize);
                         continue;
                     }
-                    let (x0, y0f) = (sx.floor() as isize, sy.floor() as isize);
+                    // The taps are columns i0.. and rows j0..; the column weights are the
+                    // same for every row, and inside the image the row is read as a slice.
+                    let (i0, j0) = (sx.floor() as isize - radius + 1, sy.floor() as isize - radius + 1);
+                    let mut wx = [0.0f64; 4];
+                    for (k, wk) in wx[..taps].iter_mut().enumerate() {
+                        *wk = kernel(sx - (i0 + k as isize) as f64);
+                    }
+                    let inside = i0 >= 0
+                        && j0 >= 0
+                        && i0 + taps as isize <= w as isize
+                        && j0 + taps as isize <= h as isize;
                     let mut acc = 0.0f64;
-                    for j in (y0f - radius + 1)..=(y0f + radius) {
-                        let wy = self.filter.eval(sy - j as f64);
+                    for j in j0..j0 + taps as isize {
+                        let wy = kernel(sy - j as f64);
                         if wy == 0.0 {
                             continue;
                         }
-                        for i in (x0 - radius + 1)..=(x0 + radius) {
-                            let wx = self.filter.eval(sx - i as f64);
-                            acc += wx * wy * f64::from(at(i, j));
+                        if inside {
+                            let row = &src.row(j as usize)[i0 as usize..i0 as usize + taps];
+                            for (wk, &v) in wx[..taps].iter().zip(row) {
+                                acc += wk * wy * f64::from(v);
+                            }
+                        } else {
+                            for (k, wk) in wx[..taps].iter().enumerate() {
+                                acc += wk * wy * f64::from(at(i0 + k as isize, j));
+                            }
                         }
                     }
                     *o = acc as f32;

@@ -12,6 +12,9 @@ set -euo pipefail
 here="$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)"
 out="${1:-demo-output}"
 mkdir -p "$out"
+out="$(cd "$out" && pwd)"
+# Recipes name their frame files relative to the demo folder.
+cd "$here"
 
 pumice() {
     cargo run --release --quiet --manifest-path "$here/../Cargo.toml" -- "$@"
@@ -19,7 +22,7 @@ pumice() {
 
 demo() {
     local input="$1" recipe="$2" output="$3"
-    pumice run "$here/$input" -o "$out/$output" -r "$here/recipes/$recipe" --overwrite
+    pumice run "$input" -o "$out/$output" -r "recipes/$recipe" --overwrite
     echo "$input -> $out/$output (recipes/$recipe)"
 }
 
@@ -28,5 +31,5 @@ demo ledger-page.png ledger.toml ledger-page-clean.png
 demo harbour-photo.jpg photo.toml harbour-web.jpg
 demo order-form-scan.png scan-cleanup.toml order-form-clean.png
 
-pumice run "$here" -o "$out/proofs/" -r "$here/recipes/proofs.toml" --overwrite --report "$out/proofs/report.json"
+pumice run . -o "$out/proofs/" -r recipes/proofs.toml --overwrite --report "$out/proofs/report.json"
 echo "demo-images/ -> $out/proofs/ (recipes/proofs.toml, report in $out/proofs/report.json)"

@@ -15,6 +15,7 @@ use pumice::measure::metadata::{self, ExifSummary, IccSummary};
 use pumice::measure::plot::{self, Canvas, Series};
 use pumice::measure::stats::{self, PERCENTILES};
 use pumice::measure::{ChannelStats, channel_stats, noise_sigma};
+use pumice::ops::scan::{SkewEstimate, measure_skew};
 use pumice::raster::{Layout, Raster, Resolution, ResolutionUnit, SampleType};
 
 const INSPECT_HELP: &str = "\
@@ -50,6 +51,10 @@ pub struct InspectArgs {
     /// Replace the plot file if it exists
     #[arg(long)]
     pub overwrite: bool,
+
+    /// Also measure the skew of text and ruled lines (as the `deskew` step does, within ±10°)
+    #[arg(long)]
+    pub skew: bool,
 }
 
 /// Bins of the histogram in `--json` and `--plot`.
@@ -167,6 +172,7 @@ pub fn run(args: InspectArgs) -> Exit {
         let name = Location::parse(path).display();
         match inspect(path) {
             Ok(found) => {
+                let skew = if args.skew { Some(skew_of(path)) } else { None };
                 if let Some(plot_path) = &args.plot
                     && let Err(e) = write_png(plot_path, &histogram_plot(&found), args.overwrite)
                 {
@@ -174,12 +180,26 @@ pub fn run(args: InspectArgs) -> Exit {
                     failed = true;
                 }
                 if args.json {
-                    json.push(to_json(&found));
+                    let mut entry = to_json(&found);
+                    if let (Json::Obj(fields), Some(skew)) = (&mut entry, &skew) {
+                        fields.push(("skew", skew_json(skew)));
+                    }
+                    json.push(entry);
                 } else {
                     if i > 0 {
                         println!();
                     }
                     print!("{}", to_text(&found));
+                    match &skew {
+                        Some(Ok(SkewEstimate { degrees: Some(d), confidence })) => {
+                            println!("skew: {d:.3}° clockwise (confidence {confidence:.2})")
+                        }
+                        Some(Ok(SkewEstimate { degrees: None, confidence })) => {
+                            println!("skew: no skew found (confidence {confidence:.2})")
+                        }
+                        Some(Err(e)) => println!("skew: not measured: {e}"),
+                        None => {}
+                    }
                 }
             }
             Err(e) => {
@@ -195,6 +215,36 @@ pub fn run(args: InspectArgs) -> Exit {
         println!("{}", Json::Arr(json));
     }
     if failed { Exit::InputFailed } else { Exit::Done }
+}
+
+/// The skew `deskew` would find, measured on BT.709 luma of the encoded values.
+fn skew_of(path: &Path) -> Result<SkewEstimate, String> {
+    let (raster, _) = load(path)?;
+    let p = raster.planes();
+    let gray = if raster.layout().colour_channels() >= 3 {
+        let mut out = vec![0.0; p[0].as_slice().len()];
+        pumice::color::luma::weighted_sum(
+            pumice::color::luma::BT709,
+            p[0].as_slice(),
+            p[1].as_slice(),
+            p[2].as_slice(),
+            &mut out,
+        );
+        pumice::raster::Plane::from_vec(p[0].width(), p[0].height(), out).map_err(|e| e.to_string())?
+    } else {
+        p[0].clone()
+    };
+    measure_skew(&gray, 10.0).map_err(|e| e.to_string())
+}
+
+fn skew_json(skew: &Result<SkewEstimate, String>) -> Json {
+    match skew {
+        Ok(s) => Json::Obj(vec![
+            ("degrees_clockwise", Json::opt(s.degrees, Json::Num)),
+            ("confidence", Json::Num(s.confidence)),
+        ]),
+        Err(e) => Json::Obj(vec![("error", Json::str(e.clone()))]),
+    }
 }
 
 fn histogram_plot(found: &Inspection) -> Canvas {

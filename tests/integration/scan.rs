@@ -259,3 +259,15 @@ fn autocrop_content_box_and_margin_are_exact() {
     assert_eq!((out.width(), out.height()), (101, 80));
     assert_eq!(out.planes()[0].get(25, 25), 0.2);
 }
+
+#[test]
+fn inspect_reports_the_skew() {
+    let input = fixtures().join("page-skew+2.75.png");
+    let run = pumice(&["inspect".as_ref(), input.as_os_str(), "--skew".as_ref(), "--json".as_ref()]).ok();
+    let v: serde_json::Value = serde_json::from_str(&run.stdout()).unwrap();
+    let d = v[0]["skew"]["degrees_clockwise"].as_f64().unwrap();
+    // The page was turned 2.75° by scipy.ndimage.rotate in make_scan.py.
+    assert!((d - 2.75).abs() <= 0.1, "{d}");
+    let text = pumice(&["inspect".as_ref(), input.as_os_str(), "--skew".as_ref()]).ok();
+    assert!(text.stdout().contains("° clockwise"), "{}", text.stdout());
+}

@@ -14,6 +14,7 @@ pub mod job;
 pub mod ops;
 pub mod pipeline;
 pub mod raster;
+pub mod stack;
 mod suggest;
 pub mod tile;
 

@@ -6,6 +6,7 @@ mod manual;
 mod ops;
 mod recipe;
 mod run;
+mod stack;
 
 use clap::{Parser, Subcommand};
 
@@ -53,6 +54,8 @@ pub enum Command {
     Completions(completions::CompletionsArgs),
     /// Print the manual page (roff)
     Manual,
+    /// Combine frames of one size into one (mean, median, min, max, sigma-clip)
+    Stack(stack::StackArgs),
 }
 
 /// Parses the command line and runs it; returns the process exit code.
@@ -64,6 +67,7 @@ pub fn main() -> Exit {
         Command::Recipe(cmd) => recipe::run(cmd),
         Command::Completions(args) => completions::run(args),
         Command::Manual => manual::run(),
+        Command::Stack(args) => stack::run(args),
     }
 }
 

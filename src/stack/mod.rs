@@ -180,7 +180,10 @@ impl Shape {
             return Some(("the size", size(self), size(first)));
         }
         if self.layout != first.layout {
-            let channels = |s: &Shape| format!("{} channels ({})", s.layout.channels(), s.layout.name());
+            let channels = |s: &Shape| match s.layout.channels() {
+                1 => format!("1 channel ({})", s.layout.name()),
+                n => format!("{n} channels ({})", s.layout.name()),
+            };
             return Some(("the channel count", channels(self), channels(first)));
         }
         if self.sample != first.sample {

@@ -15,4 +15,5 @@ mod orientation;
 mod reference;
 mod resample;
 mod robustness;
+mod stack;
 mod tone;

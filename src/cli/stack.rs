@@ -77,7 +77,7 @@ pub struct StackArgs {
     #[arg(long)]
     pub overwrite: bool,
 
-    /// Print the frame count and time taken
+    /// Print the frame count, time taken and peak memory
     #[arg(short, long)]
     pub verbose: bool,
 }
@@ -134,8 +134,10 @@ fn stack(args: &StackArgs) -> Result<(), (Exit, String)> {
         }
     })?;
     if args.verbose {
+        let peak = pumice::batch::report::peak_memory_bytes()
+            .map_or_else(|| "unknown".to_string(), |b| format!("{:.0} MiB", b as f64 / 1048576.0));
         eprintln!(
-            "pumice: stacked {} frames ({}) into {} in {:.2} s",
+            "pumice: stacked {} frames ({}) into {} in {:.2} s; peak memory {peak}",
             stacked.frames,
             args.mode,
             out.display(),

@@ -424,7 +424,6 @@ pub fn encode_tiff_pages(rasters: &[&Raster], opts: &EncodeOptions) -> Result<Ve
         let resolution = meta.and_then(|m| m.resolution);
         enc = encode_tiff_page(enc, &raster, sample, file_encoding, icc, resolution).map_err(fail)?;
     }
-    drop(enc);
     Ok(out.into_inner())
 }
 

@@ -230,27 +230,43 @@ fn is_tiff(path: &Path) -> io::Result<bool> {
 /// Frames that differ from the first in size, channel count or sample depth
 /// are refused, naming the frame.
 pub fn stack_files(inputs: &[PathBuf], opts: &StackOptions) -> Result<Stacked, StackError> {
-    // The first frame's name, shape, and labels (encoding, metadata, colour model).
-    let mut first: Option<(String, Shape, Raster)> = None;
-    let mut combiner: Option<Combiner> = None;
-    let mut frames = 0;
-    visit_frames(inputs, &opts.decode, |name, raster| {
-        let shape = Shape::of(&raster);
-        match &first {
+    let mut stacker = Stacker::new(opts);
+    visit_frames(inputs, &opts.decode, |name, raster| stacker.add(name, &raster))?;
+    stacker.finish()
+}
+
+/// Frames folded in one at a time (what [`stack_files`] does with decoded
+/// files), for frames that come from elsewhere.
+pub struct Stacker<'a> {
+    opts: &'a StackOptions,
+    /// The first frame's name, shape, and labels (encoding, metadata, colour
+    /// model) on a 1×1 placeholder.
+    first: Option<(String, Shape, Raster)>,
+    combiner: Option<Combiner>,
+    frames: usize,
+}
+
+impl<'a> Stacker<'a> {
+    pub fn new(opts: &'a StackOptions) -> Stacker<'a> {
+        Stacker { opts, first: None, combiner: None, frames: 0 }
+    }
+
+    /// Adds one frame; `name` names it in messages. A frame that differs from
+    /// the first in size, channel count or sample depth is refused.
+    pub fn add(&mut self, name: &str, raster: &Raster) -> Result<(), StackError> {
+        let shape = Shape::of(raster);
+        let frame_error = |source| StackError::Frame { frame: name.to_string(), source };
+        match &self.first {
             None => {
-                combiner = Some(Combiner::new(opts, &shape)?);
-                let mut labels = Raster::new(
-                    (0..shape.layout.channels())
-                        .map(|_| Plane::filled(1, 1, 0.0))
-                        .collect::<Result<_, _>>()
-                        .map_err(|source| StackError::Frame { frame: name.to_string(), source })?,
-                    shape.layout,
-                    raster.encoding,
-                )
-                .map_err(|source| StackError::Frame { frame: name.to_string(), source })?;
+                self.combiner = Some(Combiner::new(self.opts, &shape)?);
+                let placeholder =
+                    (0..shape.layout.channels()).map(|_| Plane::filled(1, 1, 0.0)).collect::<Result<_, _>>();
+                let mut labels =
+                    Raster::new(placeholder.map_err(frame_error)?, shape.layout, raster.encoding)
+                        .map_err(frame_error)?;
                 labels.metadata = raster.metadata.clone();
                 labels.model = raster.model;
-                first = Some((name.to_string(), shape, labels));
+                self.first = Some((name.to_string(), shape, labels));
             }
             Some((first_name, first_shape, _)) => {
                 if let Some((what, found, expected)) = shape.differs(first_shape) {
@@ -264,19 +280,23 @@ pub fn stack_files(inputs: &[PathBuf], opts: &StackOptions) -> Result<Stacked, S
                 }
             }
         }
-        frames += 1;
-        combiner.as_mut().map_or(Ok(()), |c| c.add(raster))
-    })?;
-    let (Some((_, shape, labels)), Some(combiner)) = (first, combiner) else {
-        return Err(StackError::Empty);
-    };
-    let planes = combiner.finish(opts, &shape, frames)?;
-    let mut raster = labels
-        .with_planes(planes, shape.layout)
-        .map_err(|source| StackError::Frame { frame: "the result".into(), source })?;
-    // Averages are not integer codes.
-    raster.levels = None;
-    Ok(Stacked { raster, frames })
+        self.frames += 1;
+        self.combiner.as_mut().map_or(Ok(()), |c| c.add(raster))
+    }
+
+    /// The combined frame.
+    pub fn finish(self) -> Result<Stacked, StackError> {
+        let (Some((_, shape, labels)), Some(combiner)) = (self.first, self.combiner) else {
+            return Err(StackError::Empty);
+        };
+        let planes = combiner.finish(self.opts, &shape, self.frames)?;
+        let mut raster = labels
+            .with_planes(planes, shape.layout)
+            .map_err(|source| StackError::Frame { frame: "the result".into(), source })?;
+        // Averages are not integer codes.
+        raster.levels = None;
+        Ok(Stacked { raster, frames: self.frames })
+    }
 }
 
 /// Folds frames in, one at a time.
@@ -296,7 +316,7 @@ impl Combiner {
         })
     }
 
-    fn add(&mut self, raster: Raster) -> Result<(), StackError> {
+    fn add(&mut self, raster: &Raster) -> Result<(), StackError> {
         match self {
             Combiner::Mean(sums) => {
                 for (sum, plane) in sums.iter_mut().zip(raster.planes()) {
@@ -306,7 +326,7 @@ impl Combiner {
                 }
             }
             Combiner::Extreme { max, planes: acc } => match acc {
-                None => *acc = Some(raster.into_planes().into_iter().map(Plane::into_vec).collect()),
+                None => *acc = Some(raster.planes().iter().map(|p| p.as_slice().to_vec()).collect()),
                 Some(acc) => {
                     let max = *max;
                     for (a, plane) in acc.iter_mut().zip(raster.planes()) {
@@ -316,7 +336,7 @@ impl Combiner {
                     }
                 }
             },
-            Combiner::Spill(spill) => spill.write(&raster).map_err(StackError::Spill)?,
+            Combiner::Spill(spill) => spill.write(raster).map_err(StackError::Spill)?,
         }
         Ok(())
     }
@@ -409,8 +429,8 @@ impl Spill {
         let mut out: Vec<Vec<f32>> = (0..channels).map(|_| vec![0.0; w * h]).collect();
         // One band of one channel of every frame: [frame][row][column].
         let mut band = vec![0u8; frames * band_rows * row_bytes];
-        for c in 0..channels {
-            for (b, rows) in out[c].chunks_mut(band_rows * w).enumerate() {
+        for (c, plane) in out.iter_mut().enumerate() {
+            for (b, rows) in plane.chunks_mut(band_rows * w).enumerate() {
                 let r0 = b * band_rows;
                 let n_rows = rows.len() / w;
                 let span = n_rows * row_bytes;

@@ -408,7 +408,9 @@ impl Spill {
                 match self.code {
                     Code::U16 { max } => {
                         let m = max as f32;
-                        buf.extend(row.iter().flat_map(|&v| ((v * m).round() as u16).to_le_bytes()));
+                        // v · max is within rounding of a code in [0, max]: adding ½ and
+                        // truncating rounds it to that code.
+                        buf.extend(row.iter().flat_map(|&v| ((v * m + 0.5) as u16).to_le_bytes()));
                     }
                     Code::F32 => buf.extend(row.iter().flat_map(|v| v.to_le_bytes())),
                 }
@@ -440,63 +442,96 @@ impl Spill {
                     file.read_exact(&mut band[f * span..(f + 1) * span])?;
                 }
                 let band = &band[..frames * span];
-                rows.par_chunks_mut(w).enumerate().for_each_init(
-                    || (Vec::new(), Vec::new()),
-                    |(values, scratch), (y, out_row)| {
-                        combine_row(band, span, y * row_bytes, code, opts.mode, values, scratch, out_row);
-                    },
-                );
+                rows.par_chunks_mut(w).enumerate().for_each_init(Work::default, |work, (y, out_row)| {
+                    combine_row(band, span, y * row_bytes, code, opts.mode, work, out_row);
+                });
             }
         }
         Ok(out)
     }
 }
 
+/// Working space of one worker.
+#[derive(Default)]
+struct Work {
+    /// One row of every frame, pixel-major: `[x · frames + f]`.
+    values: Vec<f64>,
+    codes: Vec<u16>,
+    scratch: Vec<f64>,
+}
+
 /// Combines one row: gathers each pixel's values from every frame (`band`
 /// holds frames `span` bytes apart; the row starts `offset` bytes into each)
-/// and reduces them.
-#[allow(clippy::too_many_arguments)]
+/// and reduces them. The median of 16-bit codes selects among the codes
+/// themselves (two bytes a value keep a row of all frames in cache); the rest
+/// works in `f64`.
 fn combine_row(
     band: &[u8],
     span: usize,
     offset: usize,
     code: Code,
     mode: Mode,
-    values: &mut Vec<f64>,
-    scratch: &mut Vec<f64>,
+    work: &mut Work,
     out: &mut [f32],
 ) {
     let frames = band.len() / span;
     let w = out.len();
-    values.clear();
-    values.resize(w * frames, 0.0);
-    // Pixel-major copy of the row: values[x·frames + f].
-    for f in 0..frames {
-        let row = &band[f * span + offset..f * span + offset + w * code.bytes()];
-        match code {
-            Code::U16 { .. } => {
-                for (x, b) in row.chunks_exact(2).enumerate() {
-                    values[x * frames + f] = f64::from(u16::from_le_bytes([b[0], b[1]]));
+    let row = |f: usize| &band[f * span + offset..f * span + offset + w * code.bytes()];
+    match (code, mode) {
+        (Code::U16 { max }, Mode::Median) => {
+            let codes = &mut work.codes;
+            codes.clear();
+            codes.resize(w * frames, 0);
+            for f in 0..frames {
+                for (x, b) in row(f).chunks_exact(2).enumerate() {
+                    codes[x * frames + f] = u16::from_le_bytes([b[0], b[1]]);
                 }
             }
-            Code::F32 => {
-                for (x, b) in row.chunks_exact(4).enumerate() {
-                    values[x * frames + f] = f64::from(f32::from_le_bytes([b[0], b[1], b[2], b[3]]));
+            for (o, v) in out.iter_mut().zip(codes.chunks_exact_mut(frames)) {
+                *o = (median_code(v) / max) as f32;
+            }
+        }
+        _ => {
+            let values = &mut work.values;
+            values.clear();
+            values.resize(w * frames, 0.0);
+            for f in 0..frames {
+                match code {
+                    Code::U16 { .. } => {
+                        for (x, b) in row(f).chunks_exact(2).enumerate() {
+                            values[x * frames + f] = f64::from(u16::from_le_bytes([b[0], b[1]]));
+                        }
+                    }
+                    Code::F32 => {
+                        for (x, b) in row(f).chunks_exact(4).enumerate() {
+                            values[x * frames + f] = f64::from(f32::from_le_bytes([b[0], b[1], b[2], b[3]]));
+                        }
+                    }
                 }
+            }
+            let scale = match code {
+                Code::U16 { max } => max,
+                Code::F32 => 1.0,
+            };
+            for (o, v) in out.iter_mut().zip(values.chunks_exact_mut(frames)) {
+                let r = match mode {
+                    Mode::SigmaClip { kappa, iterations } => {
+                        sigma_clipped_mean(v, kappa, iterations, &mut work.scratch)
+                    }
+                    _ => median(v),
+                };
+                *o = (r / scale) as f32;
             }
         }
     }
-    let scale = match code {
-        Code::U16 { max } => max,
-        Code::F32 => 1.0,
-    };
-    for (o, v) in out.iter_mut().zip(values.chunks_exact_mut(frames)) {
-        let r = match mode {
-            Mode::SigmaClip { kappa, iterations } => sigma_clipped_mean(v, kappa, iterations, scratch),
-            _ => median(v),
-        };
-        *o = (r / scale) as f32;
-    }
+}
+
+/// The median of integer codes (reordered), as [`median`] defines it.
+fn median_code(v: &mut [u16]) -> f64 {
+    let n = v.len();
+    let (lower, mid, _) = v.select_nth_unstable(n / 2);
+    let mid = f64::from(*mid);
+    if n % 2 == 1 { mid } else { (f64::from(lower.iter().copied().max().unwrap_or(0)) + mid) / 2.0 }
 }
 
 /// The median of `v` (reordered); for an even count the mean of the two

@@ -22,7 +22,7 @@
 //!   about one decoded frame, the result, and one band of all frames.
 
 use std::fs::File;
-use std::io::{self, BufReader, BufWriter, Read, Seek, SeekFrom, Write};
+use std::io::{self, BufReader, Read, Seek, SeekFrom, Write};
 use std::path::{Path, PathBuf};
 
 use rayon::prelude::*;
@@ -382,7 +382,7 @@ impl Code {
 /// The frames, spilled to an unnamed temporary file in frame order (planes in
 /// order, rows in order).
 struct Spill {
-    file: BufWriter<File>,
+    file: File,
     code: Code,
 }
 
@@ -397,25 +397,36 @@ impl Spill {
             Some(max) => Code::U16 { max: f64::from(max) },
             None => Code::F32,
         };
-        Ok(Spill { file: BufWriter::with_capacity(1 << 20, file), code })
+        Ok(Spill { file, code })
     }
 
+    /// Appends one frame's planes, converted in parallel (one plane's bytes
+    /// are held at a time).
     fn write(&mut self, raster: &Raster) -> io::Result<()> {
+        const CHUNK: usize = 1 << 14;
         let mut buf = Vec::new();
         for plane in raster.planes() {
-            for row in plane.as_slice().chunks(1 << 16) {
-                buf.clear();
-                match self.code {
+            let samples = plane.as_slice();
+            buf.resize(samples.len() * self.code.bytes(), 0);
+            let bytes = self.code.bytes();
+            buf.par_chunks_mut(CHUNK * bytes).zip(samples.par_chunks(CHUNK)).for_each(
+                |(out, row)| match self.code {
                     Code::U16 { max } => {
                         let m = max as f32;
                         // v · max is within rounding of a code in [0, max]: adding ½ and
                         // truncating rounds it to that code.
-                        buf.extend(row.iter().flat_map(|&v| ((v * m + 0.5) as u16).to_le_bytes()));
+                        for (o, &v) in out.chunks_exact_mut(2).zip(row) {
+                            o.copy_from_slice(&((v * m + 0.5) as u16).to_le_bytes());
+                        }
                     }
-                    Code::F32 => buf.extend(row.iter().flat_map(|v| v.to_le_bytes())),
-                }
-                self.file.write_all(&buf)?;
-            }
+                    Code::F32 => {
+                        for (o, v) in out.chunks_exact_mut(4).zip(row) {
+                            o.copy_from_slice(&v.to_le_bytes());
+                        }
+                    }
+                },
+            );
+            self.file.write_all(&buf)?;
         }
         Ok(())
     }
@@ -423,7 +434,7 @@ impl Spill {
     /// Reads the file back band by band and combines each pixel's values.
     fn combine(self, opts: &StackOptions, shape: &Shape, frames: usize) -> io::Result<Vec<Vec<f32>>> {
         let code = self.code;
-        let mut file = self.file.into_inner().map_err(|e| e.into_error())?;
+        let mut file = self.file;
         let (w, h, channels) = (shape.width, shape.height, shape.layout.channels());
         let row_bytes = w * code.bytes();
         let plane_bytes = (row_bytes * h) as u64;

@@ -343,3 +343,35 @@ fn mismatched_or_broken_frames_are_refused_and_nothing_is_written() {
     .stderr_has(&["--kappa"]);
     assert!(!dir.path("o.tif").exists() && !dir.path("o.png").exists());
 }
+
+#[test]
+fn run_processes_every_page_of_a_multi_page_tiff() {
+    let pages: Vec<Raster> = (0..3)
+        .map(|k| {
+            raster(3, 2, (0..6).map(|i| (1000 * k + 17 * i) as f32 / 65535.0).collect(), SampleType::U16)
+        })
+        .collect();
+    let dir = Scratch::new();
+    let refs: Vec<&Raster> = pages.iter().collect();
+    let input =
+        dir.write("pages.tif", &io::encode_tiff_pages(&refs, &tiff_options(SampleType::U16)).unwrap());
+    let out = dir.path("inverted.tif");
+    pumice(&["run", &input.display().to_string(), "-o", &out.display().to_string(), "-s", "invert"]).ok();
+    let bytes = std::fs::read(&out).unwrap();
+    assert_eq!(io::page_count(&bytes).unwrap(), 3);
+    for (k, page) in pages.iter().enumerate() {
+        let got = io::decode_page(&bytes, k, &DecodeOptions::default()).unwrap();
+        assert_eq!(got.metadata.source_sample, Some(SampleType::U16));
+        let codes: Vec<u32> =
+            got.planes()[0].as_slice().iter().map(|v| (v * 65535.0).round() as u32).collect();
+        let expected: Vec<u32> =
+            page.planes()[0].as_slice().iter().map(|v| 65535 - (v * 65535.0).round() as u32).collect();
+        assert_eq!(codes, expected, "page {}", k + 1);
+    }
+    // Another format cannot hold the pages: refused, nothing written.
+    let png = dir.path("inverted.png");
+    pumice(&["run", &input.display().to_string(), "-o", &png.display().to_string(), "-s", "invert"])
+        .expect_code(1)
+        .stderr_has(&["3 pages", ".tif"]);
+    assert!(!png.exists());
+}

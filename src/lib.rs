@@ -18,6 +18,7 @@ pub mod measure;
 pub mod ops;
 pub mod pipeline;
 pub mod raster;
+pub mod stack;
 mod suggest;
 pub mod tile;
 

@@ -9,6 +9,7 @@ mod manual;
 mod ops;
 mod recipe;
 mod run;
+mod stack;
 
 use clap::{Parser, Subcommand};
 
@@ -60,6 +61,8 @@ pub enum Command {
     Completions(completions::CompletionsArgs),
     /// Print the manual page (roff)
     Manual,
+    /// Combine frames of one size into one (mean, median, min, max, sigma-clip)
+    Stack(stack::StackArgs),
 }
 
 /// Parses the command line and runs it; returns the process exit code.
@@ -73,6 +76,7 @@ pub fn main() -> Exit {
         Command::Diff(args) => diff::run(args),
         Command::Completions(args) => completions::run(args),
         Command::Manual => manual::run(),
+        Command::Stack(args) => stack::run(args),
     }
 }
 

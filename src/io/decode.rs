@@ -112,22 +112,125 @@ pub struct DecodeOptions {
 
 /// Decodes one image (the first page or frame). The format comes from the bytes.
 pub fn decode(bytes: &[u8], opts: &DecodeOptions) -> Result<Raster, Error> {
-    let format = Format::detect(bytes).ok_or_else(|| {
-        Error::Unsupported(format!(
-            "not an image format Pumice reads (first bytes {}); it reads PNG, JPEG, TIFF, WebP, BMP, GIF and OpenEXR",
-            hex_prefix(bytes)
-        ))
-    })?;
+    let format = Format::detect(bytes).ok_or_else(|| unknown_format(bytes))?;
     let decoded = catch_unwind(AssertUnwindSafe(|| match format {
         Format::Png => decode_png(bytes, opts),
         Format::Tiff => decode_tiff(bytes, opts),
         Format::Jpeg => decode_jpeg(bytes, opts),
         _ => decode_generic(bytes, format, opts),
     }))
-    .map_err(|_| Error::Decode {
-        format: format.name(),
-        reason: "the decoder failed on malformed data".into(),
-    })??;
+    .map_err(|_| malformed(format))??;
+    finish(decoded, opts)
+}
+
+fn malformed(format: Format) -> Error {
+    Error::Decode { format: format.name(), reason: "the decoder failed on malformed data".into() }
+}
+
+/// The number of pages (images) in a file: the length of a TIFF's chain of
+/// image file directories (TIFF 6.0 §2), 1 for every other format.
+pub fn page_count(bytes: &[u8]) -> Result<usize, Error> {
+    match Format::detect(bytes) {
+        None => return Err(unknown_format(bytes)),
+        Some(Format::Tiff) => {}
+        Some(_) => return Ok(1),
+    }
+    catch_unwind(AssertUnwindSafe(|| {
+        let mut d = tiff_decoder(Cursor::new(bytes), &Limits::DEFAULT)?;
+        let mut n = 1;
+        while d.more_images() {
+            d.next_image().map_err(tiff_error)?;
+            n += 1;
+        }
+        Ok(n)
+    }))
+    .map_err(|_| malformed(Format::Tiff))?
+}
+
+/// Decodes page `page` (0-based) of a multi-page TIFF with the usual limits;
+/// page 0 of any other format is its one image.
+pub fn decode_page(bytes: &[u8], page: usize, opts: &DecodeOptions) -> Result<Raster, Error> {
+    if Format::detect(bytes) != Some(Format::Tiff) {
+        return match page {
+            0 => decode(bytes, opts),
+            _ => Err(Error::Decode {
+                format: Format::detect(bytes).map_or("image", Format::name),
+                reason: format!("there is no page {} in a single-image file", page + 1),
+            }),
+        };
+    }
+    let decoded = catch_unwind(AssertUnwindSafe(|| {
+        let mut d = tiff_decoder(Cursor::new(bytes), &opts.limits)?;
+        if page > 0 {
+            d.seek_to_image(page).map_err(|e| match e {
+                tiff::TiffError::FormatError(tiff::TiffFormatError::ImageFileDirectoryNotFound) => {
+                    Error::Decode { format: "TIFF", reason: format!("there is no page {}", page + 1) }
+                }
+                other => tiff_error(other),
+            })?;
+        }
+        decode_tiff_image(&mut d, opts)
+    }))
+    .map_err(|_| malformed(Format::Tiff))??;
+    finish(decoded, opts)
+}
+
+/// The pages of a TIFF, decoded one at a time in file order from any seekable
+/// reader (a file need not be read into memory whole), each with the usual
+/// limits. After a page fails to decode the iterator ends.
+pub struct TiffPages<R: std::io::Read + std::io::Seek> {
+    decoder: tiff::decoder::Decoder<R>,
+    opts: DecodeOptions,
+    /// Pages handed out so far.
+    visited: usize,
+    failed: bool,
+}
+
+impl<R: std::io::Read + std::io::Seek> TiffPages<R> {
+    /// Reads the TIFF header and the first image file directory.
+    pub fn new(reader: R, opts: &DecodeOptions) -> Result<Self, Error> {
+        let decoder = catch_unwind(AssertUnwindSafe(|| tiff_decoder(reader, &opts.limits)))
+            .map_err(|_| malformed(Format::Tiff))??;
+        Ok(TiffPages { decoder, opts: *opts, visited: 0, failed: false })
+    }
+
+    fn advance(&mut self) -> Option<Result<Raster, Error>> {
+        if self.visited > 0 {
+            if !self.decoder.more_images() {
+                return None;
+            }
+            if let Err(e) = self.decoder.next_image() {
+                return Some(Err(tiff_error(e)));
+            }
+        }
+        self.visited += 1;
+        Some(decode_tiff_image(&mut self.decoder, &self.opts).and_then(|d| finish(d, &self.opts)))
+    }
+}
+
+impl<R: std::io::Read + std::io::Seek> Iterator for TiffPages<R> {
+    type Item = Result<Raster, Error>;
+
+    fn next(&mut self) -> Option<Self::Item> {
+        if self.failed {
+            return None;
+        }
+        let page = catch_unwind(AssertUnwindSafe(|| self.advance()))
+            .unwrap_or_else(|_| Some(Err(malformed(Format::Tiff))));
+        self.failed = matches!(page, Some(Err(_)));
+        page
+    }
+}
+
+fn unknown_format(bytes: &[u8]) -> Error {
+    Error::Unsupported(format!(
+        "not an image format Pumice reads (first bytes {}); it reads PNG, JPEG, TIFF, WebP, BMP, GIF and OpenEXR",
+        hex_prefix(bytes)
+    ))
+}
+
+/// Sets the encoding, levels and orientation of a freshly decoded image.
+fn finish(decoded: Decoded, opts: &DecodeOptions) -> Result<Raster, Error> {
     let Decoded { mut raster, sample, orientation } = decoded;
     let file_encoding = opts.encoding.resolve(sample);
     raster.metadata.source_sample = Some(sample);
@@ -333,15 +436,31 @@ fn tiff_error(e: tiff::TiffError) -> Error {
 }
 
 fn decode_tiff(bytes: &[u8], opts: &DecodeOptions) -> Result<Decoded, Error> {
-    let limits = &opts.limits;
-    use tiff::ColorType as C;
-    use tiff::decoder::{DecodingResult, Limits as TiffLimits};
-    use tiff::tags::Tag;
+    let mut d = tiff_decoder(Cursor::new(bytes), &opts.limits)?;
+    decode_tiff_image(&mut d, opts)
+}
 
-    let mut tl = TiffLimits::default();
+/// A TIFF decoder on `reader` with Pumice's limits, at the first image.
+fn tiff_decoder<R: std::io::Read + std::io::Seek>(
+    reader: R,
+    limits: &Limits,
+) -> Result<tiff::decoder::Decoder<R>, Error> {
+    let mut tl = tiff::decoder::Limits::default();
     tl.decoding_buffer_size = usize::try_from(limits.max_bytes).unwrap_or(usize::MAX);
     tl.ifd_value_size = 64 << 20; // ICC profiles and EXIF blocks can pass the 1 MiB default
-    let mut d = tiff::decoder::Decoder::new(Cursor::new(bytes)).map_err(tiff_error)?.with_limits(tl);
+    Ok(tiff::decoder::Decoder::new(reader).map_err(tiff_error)?.with_limits(tl))
+}
+
+/// Decodes the decoder's current image.
+fn decode_tiff_image<R: std::io::Read + std::io::Seek>(
+    d: &mut tiff::decoder::Decoder<R>,
+    opts: &DecodeOptions,
+) -> Result<Decoded, Error> {
+    let limits = &opts.limits;
+    use tiff::ColorType as C;
+    use tiff::decoder::DecodingResult;
+    use tiff::tags::Tag;
+
     let (w, h) = d.dimensions().map_err(tiff_error)?;
     let colour = d.colortype().map_err(tiff_error)?;
     // PhotometricInterpretation (TIFF 6.0 §3, §6): 0 WhiteIsZero, 1 BlackIsZero, 2 RGB.
@@ -373,7 +492,7 @@ fn decode_tiff(bytes: &[u8], opts: &DecodeOptions) -> Result<Decoded, Error> {
     let orientation =
         d.find_tag_unsigned::<u16>(Tag::Orientation).ok().flatten().filter(|o| (1..=8).contains(o));
     let icc_profile = d.get_tag_u8_vec(Tag::IccProfile).ok();
-    let resolution = tiff_resolution(&mut d);
+    let resolution = tiff_resolution(d);
     let (width, height) = (w as usize, h as usize);
     let result = d.read_image().map_err(tiff_error)?;
     let (mut raster, sample) = match result {

@@ -99,18 +99,25 @@ impl EncodeOptions {
     }
 }
 
-/// Encodes `raster` in the options' format.
-pub fn encode(raster: &Raster, opts: &EncodeOptions) -> Result<Vec<u8>, Error> {
+/// A raster made ready for one format: in RGB unless the format keeps other
+/// colour models, flattened when the format has no alpha.
+struct Prepared<'a> {
+    raster: std::borrow::Cow<'a, Raster>,
+    sample: SampleType,
+    /// The encoding of the file's values.
+    file_encoding: Encoding,
+}
+
+fn prepare<'a>(raster: &'a Raster, opts: &EncodeOptions) -> Result<Prepared<'a>, Error> {
+    use std::borrow::Cow;
     let sample = opts.sample_for(raster)?;
     // A raster in another colour model (after `space`) is written as sRGB,
     // except to a float TIFF, which keeps the model's channels as they are.
     let raw = opts.format == Format::Tiff && sample == SampleType::F32;
-    let rgb;
     let raster = if raster.model != ColourModel::Rgb && !raw {
-        rgb = crate::color::models::convert(raster.clone(), ColourModel::Rgb)?;
-        &rgb
+        Cow::Owned(crate::color::models::convert(raster.clone(), ColourModel::Rgb)?)
     } else {
-        raster
+        Cow::Borrowed(raster)
     };
     let file_encoding = if raster.model != ColourModel::Rgb {
         raster.encoding
@@ -119,13 +126,18 @@ pub fn encode(raster: &Raster, opts: &EncodeOptions) -> Result<Vec<u8>, Error> {
     } else {
         opts.encoding
     };
-    let flat;
     let raster = if raster.layout().has_alpha() && !opts.format.has_alpha() {
-        flat = flatten(raster, opts.background)?;
-        &flat
+        Cow::Owned(flatten(&raster, opts.background)?)
     } else {
         raster
     };
+    Ok(Prepared { raster, sample, file_encoding })
+}
+
+/// Encodes `raster` in the options' format.
+pub fn encode(raster: &Raster, opts: &EncodeOptions) -> Result<Vec<u8>, Error> {
+    let Prepared { raster, sample, file_encoding } = prepare(raster, opts)?;
+    let raster = raster.as_ref();
     let meta = opts.keep_metadata.then_some(&raster.metadata);
     let exif = meta
         .and_then(|m| m.exif.as_deref())
@@ -202,9 +214,7 @@ pub fn encode(raster: &Raster, opts: &EncodeOptions) -> Result<Vec<u8>, Error> {
             enc.encode(&data, jw, jh, colour).map_err(|e| fail(e.to_string()))?;
             Ok(out)
         }
-        Format::Tiff => {
-            encode_tiff(raster, sample, file_encoding, icc, resolution).map_err(|e| fail(e.to_string()))
-        }
+        Format::Tiff => encode_tiff_pages(&[raster], opts),
         Format::Webp => {
             use image::ImageEncoder;
             let data = interleave_u8(raster, file_encoding);
@@ -388,25 +398,53 @@ fn interleave_f32(raster: &Raster, file: Encoding) -> Vec<f32> {
     }
 }
 
-/// Writes a TIFF with Deflate compression (horizontal predictor for integers),
-/// the ICC profile (tag 34675), resolution (tags 282, 283, 296) and a non-upright
-/// orientation (tag 274). Alpha is an extra sample marked unassociated
-/// (ExtraSamples = 2, TIFF 6.0 §18), as Pumice stores it. EXIF is not written.
-fn encode_tiff(
+/// Encodes several rasters as the pages of one TIFF (TIFF 6.0 §2: one image
+/// file directory per page, chained in order), each as [`encode`] would write
+/// it alone: its own size, layout, sample type and metadata. The options'
+/// format must be TIFF.
+pub fn encode_tiff_pages(rasters: &[&Raster], opts: &EncodeOptions) -> Result<Vec<u8>, Error> {
+    use tiff::encoder::{Compression, DeflateLevel, TiffEncoder};
+    let fail = |e: tiff::TiffError| Error::Encode { format: "TIFF", reason: e.to_string() };
+    if opts.format != Format::Tiff {
+        return Err(Error::Encode {
+            format: opts.format.name(),
+            reason: "only TIFF holds several pages in one file".into(),
+        });
+    }
+    if rasters.is_empty() {
+        return Err(Error::Encode { format: "TIFF", reason: "no pages to write".into() });
+    }
+    let mut out = Cursor::new(Vec::new());
+    let mut enc =
+        TiffEncoder::new(&mut out).map_err(fail)?.with_compression(Compression::Deflate(DeflateLevel::Fast));
+    for raster in rasters {
+        let Prepared { raster, sample, file_encoding } = prepare(raster, opts)?;
+        let meta = opts.keep_metadata.then_some(&raster.metadata);
+        let icc = meta.and_then(|m| m.icc_profile.clone());
+        let resolution = meta.and_then(|m| m.resolution);
+        enc = encode_tiff_page(enc, &raster, sample, file_encoding, icc, resolution).map_err(fail)?;
+    }
+    Ok(out.into_inner())
+}
+
+/// Writes one TIFF page with Deflate compression (horizontal predictor for
+/// integers), the ICC profile (tag 34675), resolution (tags 282, 283, 296) and
+/// a non-upright orientation (tag 274). Alpha is an extra sample marked
+/// unassociated (ExtraSamples = 2, TIFF 6.0 §18), as Pumice stores it. EXIF is
+/// not written.
+fn encode_tiff_page<W: std::io::Write + std::io::Seek>(
+    enc: tiff::encoder::TiffEncoder<W>,
     raster: &Raster,
     sample: SampleType,
     file: Encoding,
     icc: Option<Vec<u8>>,
     resolution: Option<Resolution>,
-) -> Result<Vec<u8>, tiff::TiffError> {
-    use tiff::encoder::{Compression, DeflateLevel, Predictor, TiffEncoder, colortype};
+) -> Result<tiff::encoder::TiffEncoder<W>, tiff::TiffError> {
+    use tiff::encoder::{Predictor, colortype};
     use tiff::tags::ExtraSamples;
     let (w, h) = (raster.width() as u32, raster.height() as u32);
-    let mut out = Cursor::new(Vec::new());
     let predictor = if sample == SampleType::F32 { Predictor::None } else { Predictor::Horizontal };
-    let mut enc = TiffEncoder::new(&mut out)?
-        .with_compression(Compression::Deflate(DeflateLevel::Fast))
-        .with_predictor(predictor);
+    let mut enc = enc.with_predictor(predictor);
     let orientation = raster.metadata.orientation;
     let alpha = raster.layout().has_alpha();
 
@@ -459,7 +497,7 @@ fn encode_tiff(
         (Layout::Rgba, SampleType::U16) => write!(colortype::RGBA16, interleave_u16(raster, file)),
         (Layout::Rgba, SampleType::F32) => write!(colortype::RGBA32Float, interleave_f32(raster, file)),
     }
-    Ok(out.into_inner())
+    Ok(enc)
 }
 
 /// Gray-with-alpha sample layouts for the TIFF encoder, which has none of its

@@ -9,6 +9,6 @@ pub mod file;
 pub mod format;
 mod jpeg_markers;
 
-pub use decode::{DecodeOptions, InputEncoding, Limits, decode};
-pub use encode::{Chroma, EncodeOptions, encode};
+pub use decode::{DecodeOptions, InputEncoding, Limits, TiffPages, decode, decode_page, page_count};
+pub use encode::{Chroma, EncodeOptions, encode, encode_tiff_pages};
 pub use format::Format;

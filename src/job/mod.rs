@@ -170,21 +170,43 @@ impl<'a> Job<'a> {
             linear_light: self.pipeline.first_encoding(o.domain) == Some(crate::raster::Encoding::Linear),
         };
         let input_sha256 = sha256_hex(&bytes);
-        check(Stage::Decode)?;
-        let mut raster = codec::decode(&bytes, &decode_opts).map_err(at(Stage::Decode))?;
-        drop(bytes);
-        if let Some(size) = o.pixel_size {
-            raster.metadata.resolution = Some(size.resolution());
+        // A multi-page TIFF: every page through the steps, into one multi-page
+        // TIFF. A chain of pages that cannot be walked counts as one page (the
+        // first page's own errors are reported by decoding it).
+        let pages = codec::page_count(&bytes).unwrap_or(1);
+        if pages > 1 && self.format != Format::Tiff {
+            return Err(at(Stage::Encode)(Error::Unsupported(format!(
+                "`{}` has {pages} pages; a multi-page input is written to one multi-page TIFF \
+                 (give a .tif output), or stack its pages with `pumice stack`",
+                self.input.display()
+            ))));
         }
-        let file_encoding = raster.metadata.source_encoding.unwrap_or(raster.encoding);
-        let input_size = (raster.width(), raster.height());
-        let input_layout = raster.layout();
-        let input_sample = raster.metadata.source_sample.unwrap_or(SampleType::F32);
-        check(Stage::Step { index: 1, name: self.pipeline.steps.first().map_or("none", |s| s.spec.name) })?;
-        let raster = self.pipeline.run(raster, o.domain).map_err(|f| JobError {
-            stage: Stage::Step { index: f.index + 1, name: self.pipeline.steps[f.index].spec.name },
-            error: f.error,
-        })?;
+        let mut processed = Vec::with_capacity(pages);
+        for page in 0..pages {
+            check(Stage::Decode)?;
+            let mut raster = codec::decode_page(&bytes, page, &decode_opts).map_err(at(Stage::Decode))?;
+            if let Some(size) = o.pixel_size {
+                raster.metadata.resolution = Some(size.resolution());
+            }
+            check(Stage::Step {
+                index: 1,
+                name: self.pipeline.steps.first().map_or("none", |s| s.spec.name),
+            })?;
+            let file_encoding = raster.metadata.source_encoding.unwrap_or(raster.encoding);
+            let input = (raster.width(), raster.height(), raster.layout(), raster.metadata.source_sample);
+            let raster = self.pipeline.run(raster, o.domain).map_err(|f| JobError {
+                stage: Stage::Step { index: f.index + 1, name: self.pipeline.steps[f.index].spec.name },
+                error: f.error,
+            })?;
+            processed.push((raster, file_encoding, input));
+        }
+        drop(bytes);
+        let Some((raster, file_encoding, (w, h, input_layout, input_sample))) = processed.first() else {
+            return Err(at(Stage::Decode)(Error::Internal("no page decoded".into())));
+        };
+        let (raster, file_encoding) = (raster, *file_encoding);
+        let (input_size, input_layout) = ((*w, *h), *input_layout);
+        let input_sample = input_sample.unwrap_or(SampleType::F32);
         let encode_opts = EncodeOptions {
             format: self.format,
             sample: o.sample,
@@ -194,8 +216,14 @@ impl<'a> Job<'a> {
             background: o.background,
             keep_metadata: o.keep_metadata,
         };
-        let output_sample = encode_opts.sample_for(&raster).map_err(at(Stage::Encode))?;
-        let encoded = codec::encode(&raster, &encode_opts).map_err(at(Stage::Encode))?;
+        let output_sample = encode_opts.sample_for(raster).map_err(at(Stage::Encode))?;
+        let encoded = if processed.len() > 1 {
+            // Pages are written in the first page's file encoding.
+            codec::encode_tiff_pages(&processed.iter().map(|p| &p.0).collect::<Vec<_>>(), &encode_opts)
+        } else {
+            codec::encode(raster, &encode_opts)
+        }
+        .map_err(at(Stage::Encode))?;
         check(Stage::Write)?;
         file::write_atomic(&self.output, &encoded, self.overwrite).map_err(|e| {
             let error = if e.kind() == std::io::ErrorKind::AlreadyExists {

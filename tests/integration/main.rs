@@ -20,4 +20,5 @@ mod reference;
 mod resample;
 mod robustness;
 mod scan;
+mod stack;
 mod tone;

@@ -167,6 +167,15 @@ def generate(folder):
             }
         )
 
+    # Paper flattening (`illumination:method=paper`): the unevenly lit samples
+    # whole, and the paper region the test measures the spread over — the
+    # samples skimage.filters.threshold_sauvola(window_size=25) puts above
+    # their local threshold (paper, not ink), as a 0/255 mask.
+    for name, image in [("page", data.page()), ("text", data.text())]:
+        save_png(folder, f"{name}.png", image)
+        paper = image > filters.threshold_sauvola(image, window_size=25)
+        save_png(folder, f"{name}-paper-mask.png", (paper * 255).astype(np.uint8))
+
     crop = data.page()[40:140, 0:160]
     save_png(folder, "page-crop.png", crop)
     for polarity, fn in [("dark", morphology.area_closing), ("light", morphology.area_opening)]:

@@ -114,7 +114,7 @@ impl Pipeline {
                     index,
                     error: Error::Limit(format!(
                         "the result would be {w}×{h} = {} pixels, over the limit of {} pixels",
-                        w as u64 * h as u64,
+                        w as u128 * h as u128,
                         self.max_pixels
                     )),
                 });

@@ -6,17 +6,23 @@
 use std::fs;
 use std::path::Path;
 
+/// Runs every input of `target`; panics naming each input that panicked.
 fn replay(target: &str, run: impl Fn(&[u8])) -> usize {
     let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("fuzz");
     let mut n = 0;
+    let mut panicked = Vec::new();
     for folder in ["corpus", "regressions"] {
         let Ok(entries) = fs::read_dir(root.join(folder).join(target)) else { continue };
         for e in entries {
-            let bytes = fs::read(e.unwrap().path()).unwrap();
-            run(&bytes);
+            let path = e.unwrap().path();
+            let bytes = fs::read(&path).unwrap();
+            if std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| run(&bytes))).is_err() {
+                panicked.push(path.display().to_string());
+            }
             n += 1;
         }
     }
+    assert!(panicked.is_empty(), "{target}: {} inputs panicked:\n{}", panicked.len(), panicked.join("\n"));
     n
 }
 

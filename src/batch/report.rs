@@ -48,18 +48,23 @@ impl Tally {
     }
 }
 
-/// The whole report as JSON.
-pub fn build(
+/// Writes the whole report to `path` (atomically: a temporary file beside it,
+/// renamed into place). The run, the summary and the unsupported files come
+/// first, pretty-printed; the per-file entries follow one per line, each
+/// serialised as it is written, so the report costs no memory per file
+/// beyond the outcomes themselves.
+pub fn write(
+    path: &Path,
     header: &RunHeader,
     plan: &Plan,
     outcomes: &[FileOutcome],
     pipeline: &Pipeline,
     options: &RunOptions,
     elapsed: Duration,
-) -> Value {
+) -> std::io::Result<()> {
+    use std::io::Write;
     let tally = Tally::of(outcomes);
-    let files: Vec<Value> = plan.files.iter().zip(outcomes).map(|(f, o)| file_entry(f, o)).collect();
-    json!({
+    let head = json!({
         "report_version": REPORT_VERSION,
         "run": run_entry(header, pipeline, options),
         "summary": {
@@ -74,8 +79,34 @@ pub fn build(
             "peak_memory_bytes": peak_memory_bytes(),
         },
         "unsupported": plan.unsupported.iter().map(|p| p.display().to_string()).collect::<Vec<_>>(),
-        "files": files,
-    })
+    });
+    let head = serde_json::to_string_pretty(&head).map_err(std::io::Error::other)?;
+    let dir = match path.parent() {
+        Some(d) if !d.as_os_str().is_empty() => d,
+        _ => Path::new("."),
+    };
+    let mut builder = tempfile::Builder::new();
+    builder.prefix(".report.").suffix(".tmp");
+    // An ordinary file's permissions (0666 less the umask), not a temporary's 0600.
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        builder.permissions(std::fs::Permissions::from_mode(0o666));
+    }
+    let tmp = builder.tempfile_in(dir)?;
+    let mut out = std::io::BufWriter::new(tmp);
+    // `head` is an object: reopen it to append the file list.
+    out.write_all(head.trim_end().trim_end_matches('}').trim_end().as_bytes())?;
+    out.write_all(b",\n  \"files\": [")?;
+    for (i, (f, o)) in plan.files.iter().zip(outcomes).enumerate() {
+        out.write_all(if i == 0 { b"\n    " } else { b",\n    " })?;
+        serde_json::to_writer(&mut out, &file_entry(f, o)).map_err(std::io::Error::other)?;
+    }
+    out.write_all(b"\n  ]\n}\n")?;
+    let tmp = out.into_inner().map_err(|e| e.into_error())?;
+    tmp.as_file().sync_all()?;
+    tmp.persist(path).map_err(|e| e.error)?;
+    Ok(())
 }
 
 fn run_entry(header: &RunHeader, pipeline: &Pipeline, options: &RunOptions) -> Value {

@@ -15,7 +15,7 @@ use pumice::batch::report::{RunHeader, Tally};
 use pumice::batch::{
     self, Action, BatchOptions, Control, Existing, FileOutcome, OutputSpec, Plan, PlannedFile, Shard, Status,
 };
-use pumice::io::file::{self, Location};
+use pumice::io::file::Location;
 use pumice::io::{Chroma, Format, InputEncoding};
 use pumice::job::options::{self, OptionOverrides, RunOptions};
 use pumice::job::{Job, JobSummary, recipe};
@@ -365,10 +365,16 @@ fn run_batch(args: &RunArgs, setup: &Setup) -> Exit {
     };
     if let Some(path) = &args.report {
         let header = RunHeader { started, command: std::env::args().collect(), shard };
-        let json =
-            batch::report::build(&header, &plan, &outcomes, &setup.pipeline, &setup.options, clock.elapsed());
-        let text = serde_json::to_string_pretty(&json).unwrap_or_default() + "\n";
-        if let Err(e) = file::write_atomic(&Location::Path(path.clone()), text.as_bytes(), true) {
+        let written = batch::report::write(
+            path,
+            &header,
+            &plan,
+            &outcomes,
+            &setup.pipeline,
+            &setup.options,
+            clock.elapsed(),
+        );
+        if let Err(e) = written {
             report(format!("{}: cannot write the report: {e}", path.display()));
             exit = Exit::InputFailed.max(exit);
         }

@@ -15,7 +15,7 @@ use pumice::measure::metadata::{self, ExifSummary, IccSummary};
 use pumice::measure::plot::{self, Canvas, Series};
 use pumice::measure::stats::{self, PERCENTILES};
 use pumice::measure::{ChannelStats, channel_stats, noise_sigma};
-use pumice::ops::scan::{SkewEstimate, measure_skew};
+use pumice::ops::scan::{SkewEstimate, gray_plane, measure_skew};
 use pumice::raster::{Layout, Raster, Resolution, ResolutionUnit, SampleType};
 
 const INSPECT_HELP: &str = "\
@@ -117,8 +117,7 @@ struct ChannelReport {
     histogram: Vec<u64>,
 }
 
-fn inspect(path: &Path) -> Result<Inspection, String> {
-    let (raster, format) = load(path)?;
+fn inspect(path: &Path, raster: &Raster, format: Format) -> Result<Inspection, String> {
     let sample = raster.metadata.source_sample.unwrap_or(SampleType::F32);
     let levels = raster.levels;
     let per_channel: Vec<(ChannelStats, Option<f64>)> =
@@ -170,9 +169,11 @@ pub fn run(args: InspectArgs) -> Exit {
     let mut json = Vec::new();
     for (i, path) in args.images.iter().enumerate() {
         let name = Location::parse(path).display();
-        match inspect(path) {
-            Ok(found) => {
-                let skew = if args.skew { Some(skew_of(path)) } else { None };
+        match load(path).and_then(|(raster, format)| {
+            let skew = args.skew.then(|| skew_of(&raster));
+            inspect(path, &raster, format).map(|found| (found, skew))
+        }) {
+            Ok((found, skew)) => {
                 if let Some(plot_path) = &args.plot
                     && let Err(e) = write_png(plot_path, &histogram_plot(&found), args.overwrite)
                 {
@@ -217,23 +218,9 @@ pub fn run(args: InspectArgs) -> Exit {
     if failed { Exit::InputFailed } else { Exit::Done }
 }
 
-/// The skew `deskew` would find, measured on BT.709 luma of the encoded values.
-fn skew_of(path: &Path) -> Result<SkewEstimate, String> {
-    let (raster, _) = load(path)?;
-    let p = raster.planes();
-    let gray = if raster.layout().colour_channels() >= 3 {
-        let mut out = vec![0.0; p[0].as_slice().len()];
-        pumice::color::luma::weighted_sum(
-            pumice::color::luma::BT709,
-            p[0].as_slice(),
-            p[1].as_slice(),
-            p[2].as_slice(),
-            &mut out,
-        );
-        pumice::raster::Plane::from_vec(p[0].width(), p[0].height(), out).map_err(|e| e.to_string())?
-    } else {
-        p[0].clone()
-    };
+/// The skew `deskew` would find, measured on the plane it measures (BT.709 luma of the encoded values).
+fn skew_of(raster: &Raster) -> Result<SkewEstimate, String> {
+    let gray = gray_plane(raster).map_err(|e| e.to_string())?;
     measure_skew(&gray, 10.0).map_err(|e| e.to_string())
 }
 

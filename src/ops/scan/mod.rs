@@ -20,7 +20,7 @@ use crate::tile;
 
 /// The plane the scan operators look at: the gray plane itself, or the BT.709
 /// weighted sum of R, G and B (ITU-R BT.709-6 §3.3) in the raster's encoding.
-fn gray_plane(raster: &Raster) -> Result<Plane, Error> {
+pub fn gray_plane(raster: &Raster) -> Result<Plane, Error> {
     let p = raster.planes();
     if raster.layout().colour_channels() == 1 {
         return Ok(p[0].clone());

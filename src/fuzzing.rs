@@ -45,6 +45,7 @@ pub fn template(text: &str) {
         parent: "day3".into(),
         dir: "day3/wells".into(),
         n: 42,
+        page: 3,
     };
     let _ = expand(text, &fields);
 }

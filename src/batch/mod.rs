@@ -100,7 +100,10 @@ pub enum Action {
 #[derive(Clone, Debug)]
 pub struct PlannedFile {
     pub input: InputFile,
+    /// The output; with `{page}` in the template, the first page's.
     pub output: PathBuf,
+    /// With `{page}` in the template: one output file per page, named so.
+    pub pages: Option<naming::PageNames>,
     pub action: Action,
 }
 
@@ -184,14 +187,15 @@ pub fn plan(
             problems.push(format!("`{}`: {e}", out.display()));
             continue;
         }
-        named.push((input, out));
+        let pages = output.page_names_for(&input, i + 1);
+        named.push((input, out, pages));
     }
     if !problems.is_empty() {
         return Err(Error::Recipe(summarise(&problems)));
     }
     let mut files = Vec::with_capacity(named.len());
     let mut existing = Vec::new();
-    for (input, out) in named {
+    for (input, out, pages) in named {
         if let Some(s) = batch.shard
             && !s.owns(&input.relative)
         {
@@ -214,7 +218,7 @@ pub fn plan(
                 continue;
             }
         };
-        files.push(PlannedFile { input, output: out, action });
+        files.push(PlannedFile { input, output: out, pages, action });
     }
     if let Some(first) = existing.first() {
         let others = match existing.len() - 1 {
@@ -378,6 +382,11 @@ fn run_job(
         Ok(j) => j,
         Err(e) => return Status::Failed(e.to_string()),
     };
+    let page_name = |page: usize| -> Result<PathBuf, Error> {
+        let names = file.pages.as_ref().ok_or_else(|| Error::Internal("no page names".into()))?;
+        names.path(page).map_err(Error::Recipe)
+    };
+    let job = if file.pages.is_some() { job.one_file_per_page(&page_name) } else { job };
     match job.run_unless(&|| control.cancel.load(Ordering::Relaxed)) {
         Ok(summary) => {
             if batch.sidecar

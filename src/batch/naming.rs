@@ -63,6 +63,32 @@ impl OutputSpec {
             OutputSpec::Template(t) => expand(t, &Fields::of(input, n)).map(PathBuf::from),
         }
     }
+
+    /// With `{page}` in the template: the names of `input`'s per-page outputs
+    /// ([`OutputSpec::output_for`] is then the first page's name).
+    pub fn page_names_for(&self, input: &InputFile, n: usize) -> Option<PageNames> {
+        let OutputSpec::Template(t) = self else { return None };
+        let fields = Fields::of(input, n);
+        let second = Fields { page: 2, ..fields.clone() };
+        // A template names pages when page 1 and page 2 get different names.
+        (expand(t, &fields).ok()? != expand(t, &second).ok()?)
+            .then(|| PageNames { template: t.clone(), fields })
+    }
+}
+
+/// The output names of one input's pages: a template with `{page}`, and the
+/// input's other fields.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct PageNames {
+    template: String,
+    fields: Fields,
+}
+
+impl PageNames {
+    /// The output for page `page` (1-based).
+    pub fn path(&self, page: usize) -> Result<PathBuf, String> {
+        expand(&self.template, &Fields { page, ..self.fields.clone() }).map(PathBuf::from)
+    }
 }
 
 /// The values a template can use.
@@ -80,6 +106,8 @@ pub struct Fields {
     pub dir: String,
     /// The input's 1-based position in the sorted input list.
     pub n: usize,
+    /// The 1-based page of a multi-page input (1 for a single image).
+    pub page: usize,
 }
 
 impl Fields {
@@ -96,6 +124,7 @@ impl Fields {
             parent: text(parent.as_deref().and_then(Path::file_name)),
             dir: input.sub_folder().to_string_lossy().into_owned(),
             n,
+            page: 1,
         }
     }
 
@@ -107,17 +136,19 @@ impl Fields {
             parent: "p".into(),
             dir: String::new(),
             n: 1,
+            page: 1,
         }
     }
 }
 
 /// The template fields, for messages.
-pub const FIELD_NAMES: &str = "{stem}, {ext}, {name}, {parent}, {dir}, {n} (or {n:04} for zero-padded)";
+pub const FIELD_NAMES: &str =
+    "{stem}, {ext}, {name}, {parent}, {dir}, {n}, {page} (or {n:04}, {page:03} for zero-padded)";
 
-/// Expands `template`: `{stem}`, `{ext}`, `{name}`, `{parent}`, `{dir}` and
-/// `{n}` are replaced by the input's values (`{n:0W}` pads `n` with zeros to
-/// `W` digits), `{{` and `}}` are literal braces. Anything else in braces is an
-/// error naming it.
+/// Expands `template`: `{stem}`, `{ext}`, `{name}`, `{parent}`, `{dir}`, `{n}`
+/// and `{page}` are replaced by the input's values (`{n:0W}` and `{page:0W}`
+/// pad with zeros to `W` digits), `{{` and `}}` are literal braces. Anything
+/// else in braces is an error naming it.
 pub fn expand(template: &str, f: &Fields) -> Result<String, String> {
     let mut out = String::with_capacity(template.len() + 16);
     let mut rest = template;
@@ -145,9 +176,11 @@ pub fn expand(template: &str, f: &Fields) -> Result<String, String> {
             "parent" => out.push_str(&f.parent),
             "dir" => out.push_str(&f.dir),
             "n" => out.push_str(&f.n.to_string()),
-            _ => match field.strip_prefix("n:0").and_then(|w| w.parse::<usize>().ok()) {
-                Some(width) if width <= 12 => out.push_str(&format!("{:0width$}", f.n)),
-                _ => {
+            "page" => out.push_str(&f.page.to_string()),
+            _ => match padded(field) {
+                Some((Counter::N, width)) => out.push_str(&format!("{:0width$}", f.n)),
+                Some((Counter::Page, width)) => out.push_str(&format!("{:0width$}", f.page)),
+                None => {
                     return Err(format!(
                         "output template `{template}`: unknown field `{{{field}}}`; the fields are {FIELD_NAMES}"
                     ));
@@ -161,6 +194,22 @@ pub fn expand(template: &str, f: &Fields) -> Result<String, String> {
         return Err(format!("output template `{template}` gives an empty name"));
     }
     Ok(out)
+}
+
+enum Counter {
+    N,
+    Page,
+}
+
+/// `n:0W` or `page:0W` with a width of at most 12 digits.
+fn padded(field: &str) -> Option<(Counter, usize)> {
+    let (counter, width) = if let Some(w) = field.strip_prefix("n:0") {
+        (Counter::N, w)
+    } else {
+        (Counter::Page, field.strip_prefix("page:0")?)
+    };
+    let width = width.parse::<usize>().ok().filter(|w| *w <= 12)?;
+    Some((counter, width))
 }
 
 #[cfg(test)]
@@ -179,9 +228,24 @@ mod tests {
             expand("out/{dir}/{parent}-{stem}-{n:04}.{ext}|{name}|{n}|{{x}}", &f).unwrap(),
             "out/box3/box3-page.01-0007.TIF|page.01.TIF|7|{x}"
         );
-        for bad in ["{size}", "{stem", "stem}", "{n:0x}", ""] {
+        let p = Fields { page: 3, ..f.clone() };
+        assert_eq!(expand("{stem}-p{page}-{page:03}.tif", &p).unwrap(), "page.01-p3-003.tif");
+        for bad in ["{size}", "{stem", "stem}", "{n:0x}", "{page:0}", "{page:013}", ""] {
             assert!(expand(bad, &f).is_err(), "{bad}");
         }
+    }
+
+    #[test]
+    fn only_templates_with_a_page_field_name_pages() {
+        let i = input("in/stack.tif", "stack.tif");
+        let paged = OutputSpec::parse(Path::new("out/{stem}-{page:02}.tif"), false).unwrap();
+        let names = paged.page_names_for(&i, 1).unwrap();
+        assert_eq!(names.path(1).unwrap(), Path::new("out/stack-01.tif"));
+        assert_eq!(names.path(12).unwrap(), Path::new("out/stack-12.tif"));
+        assert_eq!(paged.output_for(&i, 1, None).unwrap(), names.path(1).unwrap());
+        let plain = OutputSpec::parse(Path::new("out/{stem}.tif"), false).unwrap();
+        assert!(plain.page_names_for(&i, 1).is_none());
+        assert!(OutputSpec::Folder("out".into()).page_names_for(&i, 1).is_none());
     }
 
     #[test]

@@ -10,7 +10,7 @@ use super::{FileOutcome, Plan, PlannedFile, Shard, Status};
 use crate::io::file::{self, Location};
 use crate::job::{JobSummary, RunOptions};
 use crate::pipeline::Pipeline;
-use crate::raster::NoteValue;
+use crate::raster::{Note, NoteValue};
 
 /// The report format's version; it changes when a field changes meaning.
 pub const REPORT_VERSION: u32 = 1;
@@ -150,17 +150,7 @@ fn file_entry(file: &PlannedFile, outcome: &FileOutcome) -> Value {
 }
 
 fn summary_fields(s: &JobSummary) -> Vec<(&'static str, Value)> {
-    let notes: Vec<Value> = s
-        .notes
-        .iter()
-        .map(|n| match &n.value {
-            NoteValue::Number { value, unit } => {
-                json!({"operator": n.operator, "name": n.name, "value": value, "unit": unit})
-            }
-            NoteValue::Text(t) => json!({"operator": n.operator, "name": n.name, "text": t}),
-        })
-        .collect();
-    vec![
+    let mut fields = vec![
         (
             "input_image",
             json!({
@@ -177,8 +167,42 @@ fn summary_fields(s: &JobSummary) -> Vec<(&'static str, Value)> {
         ),
         ("input_sha256", s.input_sha256.clone().into()),
         ("output_sha256", s.output_sha256.clone().into()),
-        ("notes", notes.into()),
-    ]
+        ("notes", notes_json(&s.notes).into()),
+    ];
+    if !s.pages.is_empty() {
+        let pages: Vec<Value> = s
+            .pages
+            .iter()
+            .enumerate()
+            .map(|(i, p)| {
+                let mut page = Map::new();
+                page.insert("page".into(), (i + 1).into());
+                if let Some(out) = &p.output {
+                    page.insert("output".into(), out.display().to_string().into());
+                    page.insert("output_sha256".into(), p.output_sha256.clone().into());
+                }
+                page.insert("width".into(), p.output_size.0.into());
+                page.insert("height".into(), p.output_size.1.into());
+                page.insert("notes".into(), notes_json(&p.notes).into());
+                Value::Object(page)
+            })
+            .collect();
+        fields.push(("pages", pages.into()));
+    }
+    fields
+}
+
+/// The notes of a page as JSON objects.
+fn notes_json(notes: &[Note]) -> Vec<Value> {
+    notes
+        .iter()
+        .map(|n| match &n.value {
+            NoteValue::Number { value, unit } => {
+                json!({"operator": n.operator, "name": n.name, "value": value, "unit": unit})
+            }
+            NoteValue::Text(t) => json!({"operator": n.operator, "name": n.name, "text": t}),
+        })
+        .collect()
 }
 
 /// Writes the processing record of one output to `OUTPUT.record.json`: the
@@ -199,8 +223,19 @@ pub fn write_sidecar(
     for (k, v) in summary_fields(summary) {
         record.insert(k.into(), v);
     }
-    let text = serde_json::to_string_pretty(&Value::Object(record)).map_err(std::io::Error::other)? + "\n";
-    file::write_atomic(&Location::Path(sidecar_path(&file.output)), text.as_bytes(), true)
+    // One file per page: each page file gets the record, with its own name.
+    let outputs: Vec<&Path> = if summary.pages.iter().any(|p| p.output.is_some()) {
+        summary.pages.iter().filter_map(|p| p.output.as_deref()).collect()
+    } else {
+        vec![file.output.as_path()]
+    };
+    for output in outputs {
+        record.insert("output".into(), output.display().to_string().into());
+        let text =
+            serde_json::to_string_pretty(&Value::Object(record.clone())).map_err(std::io::Error::other)?;
+        file::write_atomic(&Location::Path(sidecar_path(output)), (text + "\n").as_bytes(), true)?;
+    }
+    Ok(())
 }
 
 /// Where the processing record of `output` goes.

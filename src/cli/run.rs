@@ -442,8 +442,19 @@ fn describe_done(input: &str, output: &str, s: &JobSummary) -> String {
         s.output_sample.name(),
         s.elapsed.as_secs_f64() * 1000.0
     );
-    for note in &s.notes {
-        text.push_str(&format!("\n  {note}"));
+    if s.pages.is_empty() {
+        for note in &s.notes {
+            text.push_str(&format!("\n  {note}"));
+        }
+    }
+    for (i, page) in s.pages.iter().enumerate() {
+        match &page.output {
+            Some(out) => text.push_str(&format!("\n  page {} → {}", i + 1, out.display())),
+            None => text.push_str(&format!("\n  page {}", i + 1)),
+        }
+        for note in &page.notes {
+            text.push_str(&format!("\n    {note}"));
+        }
     }
     text
 }

@@ -403,22 +403,36 @@ fn interleave_f32(raster: &Raster, file: Encoding) -> Vec<f32> {
 /// it alone: its own size, layout, sample type and metadata. The options'
 /// format must be TIFF.
 pub fn encode_tiff_pages(rasters: &[&Raster], opts: &EncodeOptions) -> Result<Vec<u8>, Error> {
+    encode_tiff_pages_with(rasters.len(), opts, |i| Ok(std::borrow::Cow::Borrowed(rasters[i])), |e| e)
+}
+
+/// [`encode_tiff_pages`] with the pages made one at a time by `page(i)`
+/// (0-based, in order), so only one page's planes need to exist at once.
+/// Errors of `page` are returned as they are; encoding errors go through
+/// `encode_error`.
+pub fn encode_tiff_pages_with<'r, E>(
+    pages: usize,
+    opts: &EncodeOptions,
+    mut page: impl FnMut(usize) -> Result<std::borrow::Cow<'r, Raster>, E>,
+    encode_error: impl Fn(Error) -> E,
+) -> Result<Vec<u8>, E> {
     use tiff::encoder::{Compression, DeflateLevel, TiffEncoder};
-    let fail = |e: tiff::TiffError| Error::Encode { format: "TIFF", reason: e.to_string() };
+    let fail = |e: tiff::TiffError| encode_error(Error::Encode { format: "TIFF", reason: e.to_string() });
     if opts.format != Format::Tiff {
-        return Err(Error::Encode {
+        return Err(encode_error(Error::Encode {
             format: opts.format.name(),
             reason: "only TIFF holds several pages in one file".into(),
-        });
+        }));
     }
-    if rasters.is_empty() {
-        return Err(Error::Encode { format: "TIFF", reason: "no pages to write".into() });
+    if pages == 0 {
+        return Err(encode_error(Error::Encode { format: "TIFF", reason: "no pages to write".into() }));
     }
     let mut out = Cursor::new(Vec::new());
     let mut enc =
         TiffEncoder::new(&mut out).map_err(fail)?.with_compression(Compression::Deflate(DeflateLevel::Fast));
-    for raster in rasters {
-        let Prepared { raster, sample, file_encoding } = prepare(raster, opts)?;
+    for i in 0..pages {
+        let raster = page(i)?;
+        let Prepared { raster, sample, file_encoding } = prepare(&raster, opts).map_err(&encode_error)?;
         let meta = opts.keep_metadata.then_some(&raster.metadata);
         let icc = meta.and_then(|m| m.icc_profile.clone());
         let resolution = meta.and_then(|m| m.resolution);

@@ -10,5 +10,5 @@ pub mod format;
 mod jpeg_markers;
 
 pub use decode::{DecodeOptions, InputEncoding, Limits, TiffPages, decode, decode_page, page_count};
-pub use encode::{Chroma, EncodeOptions, encode, encode_tiff_pages};
+pub use encode::{Chroma, EncodeOptions, encode, encode_tiff_pages, encode_tiff_pages_with};
 pub use format::Format;

@@ -81,15 +81,17 @@ pub struct JobSummary {
     pub output_format: Format,
     /// SHA-256 (FIPS 180-4) of the input file's bytes, in lower-case hex.
     pub input_sha256: String,
-    /// SHA-256 of the bytes written.
+    /// SHA-256 of the bytes written (of the first page's file when each page
+    /// has its own).
     pub output_sha256: String,
-    /// What the steps measured (see [`Note`]).
+    /// What the steps measured (see [`Note`]) on the first page.
     pub notes: Vec<Note>,
+    /// One entry per page of a multi-page input (empty for a single image).
+    pub pages: Vec<PageSummary>,
     pub elapsed: Duration,
 }
 
 /// A checked job, ready to run.
-#[derive(Debug)]
 pub struct Job<'a> {
     pub input: Location,
     pub output: Location,
@@ -97,6 +99,20 @@ pub struct Job<'a> {
     pub pipeline: &'a Pipeline,
     pub options: &'a RunOptions,
     pub overwrite: bool,
+    /// Names one output file per page, instead of one multi-page TIFF.
+    pub per_page: Option<PageNamer<'a>>,
+}
+
+impl fmt::Debug for Job<'_> {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.debug_struct("Job")
+            .field("input", &self.input)
+            .field("output", &self.output)
+            .field("format", &self.format)
+            .field("overwrite", &self.overwrite)
+            .field("one_file_per_page", &self.per_page.is_some())
+            .finish_non_exhaustive()
+    }
 }
 
 impl<'a> Job<'a> {
@@ -136,7 +152,13 @@ impl<'a> Job<'a> {
                 )));
             }
         }
-        Ok(Job { input, output, format, pipeline, options, overwrite })
+        Ok(Job { input, output, format, pipeline, options, overwrite, per_page: None })
+    }
+
+    /// Writes one file per page (names from `names`, given the 1-based page)
+    /// instead of one multi-page TIFF.
+    pub fn one_file_per_page(self, names: PageNamer<'a>) -> Job<'a> {
+        Job { per_page: Some(names), ..self }
     }
 
     /// Reads, decodes, runs the steps, encodes and writes. Nothing is written
@@ -149,105 +171,229 @@ impl<'a> Job<'a> {
     /// writing when `cancelled()` has become true (a stage already under way
     /// finishes first). A cancelled job writes nothing and fails with an
     /// `Interrupted` I/O error at the stage it stopped before.
+    ///
+    /// A multi-page TIFF input sends every page through the steps, one page at
+    /// a time (only one page's planes are held): into one multi-page TIFF, or
+    /// with [`Job::one_file_per_page`] into one file per page. If a page fails,
+    /// the page files this job wrote already are removed again, so an input
+    /// leaves all its pages or none.
     pub fn run_unless(&self, cancelled: &dyn Fn() -> bool) -> Result<JobSummary, JobError> {
         let start = Instant::now();
-        let check = |stage: Stage| {
-            if cancelled() {
-                let error = std::io::Error::new(std::io::ErrorKind::Interrupted, "interrupted").into();
-                Err(JobError { stage, error })
-            } else {
-                Ok(())
-            }
-        };
         let o = self.options;
-        let at = |stage: Stage| move |error: Error| JobError { stage: stage.clone(), error };
         let bytes =
             file::read_input(&self.input, o.limits.max_bytes).map_err(|e| at(Stage::Read)(e.into()))?;
-        let decode_opts = DecodeOptions {
-            limits: o.limits,
-            encoding: o.input_encoding,
-            keep_orientation: o.keep_orientation,
-            linear_light: self.pipeline.first_encoding(o.domain) == Some(crate::raster::Encoding::Linear),
-        };
         let input_sha256 = sha256_hex(&bytes);
-        // A multi-page TIFF: every page through the steps, into one multi-page
-        // TIFF. A chain of pages that cannot be walked counts as one page (the
-        // first page's own errors are reported by decoding it).
+        // A chain of pages that cannot be walked counts as one page (the first
+        // page's own errors are reported by decoding it).
         let pages = codec::page_count(&bytes).unwrap_or(1);
-        if pages > 1 && self.format != Format::Tiff {
+        if pages > 1 && self.per_page.is_none() && self.format != Format::Tiff {
             return Err(at(Stage::Encode)(Error::Unsupported(format!(
                 "`{}` has {pages} pages; a multi-page input is written to one multi-page TIFF \
-                 (give a .tif output), or stack its pages with `pumice stack`",
+                 (give a .tif output) or to one file per page (a name template with {{page}}), \
+                 or its pages are stacked with `pumice stack`",
                 self.input.display()
             ))));
         }
-        let mut processed = Vec::with_capacity(pages);
-        for page in 0..pages {
-            check(Stage::Decode)?;
-            let mut raster = codec::decode_page(&bytes, page, &decode_opts).map_err(at(Stage::Decode))?;
-            if let Some(size) = o.pixel_size {
-                raster.metadata.resolution = Some(size.resolution());
-            }
-            check(Stage::Step {
-                index: 1,
-                name: self.pipeline.steps.first().map_or("none", |s| s.spec.name),
-            })?;
-            let file_encoding = raster.metadata.source_encoding.unwrap_or(raster.encoding);
-            let input = (raster.width(), raster.height(), raster.layout(), raster.metadata.source_sample);
-            let raster = self.pipeline.run(raster, o.domain).map_err(|f| JobError {
-                stage: Stage::Step { index: f.index + 1, name: self.pipeline.steps[f.index].spec.name },
-                error: f.error,
-            })?;
-            processed.push((raster, file_encoding, input));
-        }
-        drop(bytes);
-        let Some((raster, file_encoding, (w, h, input_layout, input_sample))) = processed.first() else {
-            return Err(at(Stage::Decode)(Error::Internal("no page decoded".into())));
-        };
-        let (raster, file_encoding) = (raster, *file_encoding);
-        let (input_size, input_layout) = ((*w, *h), *input_layout);
-        let input_sample = input_sample.unwrap_or(SampleType::F32);
+        let reader = PageReader { job: self, bytes: &bytes, cancelled };
+        let first = reader.page(0)?;
         let encode_opts = EncodeOptions {
             format: self.format,
             sample: o.sample,
-            encoding: file_encoding,
+            // Every page is written in the first page's file encoding.
+            encoding: first.file_encoding,
             quality: o.quality,
             chroma: o.chroma,
             background: o.background,
             keep_metadata: o.keep_metadata,
         };
-        let output_sample = encode_opts.sample_for(raster).map_err(at(Stage::Encode))?;
-        let encoded = if processed.len() > 1 {
-            // Pages are written in the first page's file encoding.
-            codec::encode_tiff_pages(&processed.iter().map(|p| &p.0).collect::<Vec<_>>(), &encode_opts)
+        let output_sample = encode_opts.sample_for(&first.raster).map_err(at(Stage::Encode))?;
+        let mut summary = JobSummary {
+            input_size: first.input_size,
+            input_layout: first.input_layout,
+            input_sample: first.input_sample.unwrap_or(SampleType::F32),
+            output_size: (first.raster.width(), first.raster.height()),
+            output_sample,
+            output_format: self.format,
+            input_sha256,
+            output_sha256: String::new(),
+            notes: first.raster.metadata.notes.clone(),
+            pages: Vec::new(),
+            elapsed: Duration::ZERO,
+        };
+        if let Some(names) = self.per_page {
+            summary.pages = self.write_pages(&reader, first, pages, &encode_opts, names)?;
+            summary.output_sha256 =
+                summary.pages.first().map(|p| p.output_sha256.clone()).unwrap_or_default();
         } else {
-            codec::encode(raster, &encode_opts)
+            let encoded = if pages > 1 {
+                let mut first = Some(first);
+                let mut records = Vec::with_capacity(pages);
+                let encoded = codec::encode_tiff_pages_with(
+                    pages,
+                    &encode_opts,
+                    |page| {
+                        let done = match first.take() {
+                            Some(f) => f,
+                            None => reader.page(page)?,
+                        };
+                        records.push(PageSummary::of(&done.raster, None, String::new()));
+                        Ok(std::borrow::Cow::Owned(done.raster))
+                    },
+                    at(Stage::Encode),
+                )?;
+                summary.pages = records;
+                encoded
+            } else {
+                codec::encode(&first.raster, &encode_opts).map_err(at(Stage::Encode))?
+            };
+            check(cancelled, Stage::Write)?;
+            self.write(&self.output, &encoded)?;
+            summary.output_sha256 = sha256_hex(&encoded);
         }
-        .map_err(at(Stage::Encode))?;
-        check(Stage::Write)?;
-        file::write_atomic(&self.output, &encoded, self.overwrite).map_err(|e| {
+        summary.elapsed = start.elapsed();
+        Ok(summary)
+    }
+
+    /// Encodes and writes every page to its own file, removing the files
+    /// written so far when a page fails.
+    fn write_pages(
+        &self,
+        reader: &PageReader<'_>,
+        first: DonePage,
+        pages: usize,
+        encode_opts: &EncodeOptions,
+        names: PageNamer<'a>,
+    ) -> Result<Vec<PageSummary>, JobError> {
+        let mut written: Vec<PageSummary> = Vec::with_capacity(pages);
+        let mut first = Some(first);
+        let mut one = |page: usize| -> Result<PageSummary, JobError> {
+            let done = match first.take() {
+                Some(f) => f,
+                None => reader.page(page)?,
+            };
+            let path = names(page + 1).map_err(at(Stage::Plan))?;
+            let encoded = codec::encode(&done.raster, encode_opts).map_err(at(Stage::Encode))?;
+            check(reader.cancelled, Stage::Write)?;
+            let location = Location::Path(path.clone());
+            self.write(&location, &encoded)?;
+            Ok(PageSummary::of(&done.raster, Some(path), sha256_hex(&encoded)))
+        };
+        for page in 0..pages {
+            match one(page) {
+                Ok(p) => written.push(p),
+                Err(e) => {
+                    for p in &written {
+                        if let Some(path) = &p.output {
+                            let _ = std::fs::remove_file(path);
+                        }
+                    }
+                    return Err(e);
+                }
+            }
+        }
+        Ok(written)
+    }
+
+    /// Writes `encoded` atomically to `to`.
+    fn write(&self, to: &Location, encoded: &[u8]) -> Result<(), JobError> {
+        file::write_atomic(to, encoded, self.overwrite).map_err(|e| {
             let error = if e.kind() == std::io::ErrorKind::AlreadyExists {
                 Error::Recipe(format!(
                     "`{}` appeared while working; add --overwrite to replace it",
-                    self.output.display()
+                    to.display()
                 ))
             } else {
                 e.into()
             };
             JobError { stage: Stage::Write, error }
-        })?;
-        Ok(JobSummary {
-            input_size,
-            input_layout,
-            input_sample,
-            output_size: (raster.width(), raster.height()),
-            output_sample,
-            output_format: self.format,
-            input_sha256,
-            output_sha256: sha256_hex(&encoded),
-            notes: raster.metadata.notes.clone(),
-            elapsed: start.elapsed(),
         })
+    }
+}
+
+/// Names the output file of a page (1-based).
+pub type PageNamer<'a> = &'a (dyn Fn(usize) -> Result<PathBuf, Error> + Sync);
+
+/// What one page of the output was.
+#[derive(Clone, Debug)]
+pub struct PageSummary {
+    /// Its own file, when pages are written one file each.
+    pub output: Option<PathBuf>,
+    /// SHA-256 of that file (empty when the page is inside a multi-page file).
+    pub output_sha256: String,
+    pub output_size: (usize, usize),
+    /// What the steps measured on this page.
+    pub notes: Vec<Note>,
+}
+
+impl PageSummary {
+    fn of(raster: &crate::raster::Raster, output: Option<PathBuf>, output_sha256: String) -> PageSummary {
+        PageSummary {
+            output,
+            output_sha256,
+            output_size: (raster.width(), raster.height()),
+            notes: raster.metadata.notes.clone(),
+        }
+    }
+}
+
+/// One page through the steps.
+struct DonePage {
+    raster: crate::raster::Raster,
+    /// How the file stored the samples (the output is written the same way).
+    file_encoding: crate::raster::Encoding,
+    input_size: (usize, usize),
+    input_layout: Layout,
+    input_sample: Option<SampleType>,
+}
+
+/// Decodes pages of one input and runs the steps on them.
+struct PageReader<'j> {
+    job: &'j Job<'j>,
+    bytes: &'j [u8],
+    cancelled: &'j dyn Fn() -> bool,
+}
+
+impl PageReader<'_> {
+    fn page(&self, page: usize) -> Result<DonePage, JobError> {
+        let (job, o) = (self.job, self.job.options);
+        let decode_opts = DecodeOptions {
+            limits: o.limits,
+            encoding: o.input_encoding,
+            keep_orientation: o.keep_orientation,
+            linear_light: job.pipeline.first_encoding(o.domain) == Some(crate::raster::Encoding::Linear),
+        };
+        check(self.cancelled, Stage::Decode)?;
+        let mut raster = codec::decode_page(self.bytes, page, &decode_opts).map_err(at(Stage::Decode))?;
+        if let Some(size) = o.pixel_size {
+            raster.metadata.resolution = Some(size.resolution());
+        }
+        check(
+            self.cancelled,
+            Stage::Step { index: 1, name: job.pipeline.steps.first().map_or("none", |s| s.spec.name) },
+        )?;
+        let file_encoding = raster.metadata.source_encoding.unwrap_or(raster.encoding);
+        let (input_size, input_layout) = ((raster.width(), raster.height()), raster.layout());
+        let input_sample = raster.metadata.source_sample;
+        let raster = job.pipeline.run(raster, o.domain).map_err(|f| JobError {
+            stage: Stage::Step { index: f.index + 1, name: job.pipeline.steps[f.index].spec.name },
+            error: f.error,
+        })?;
+        Ok(DonePage { raster, file_encoding, input_size, input_layout, input_sample })
+    }
+}
+
+/// Maps an error to a failure at `stage`.
+fn at(stage: Stage) -> impl Fn(Error) -> JobError {
+    move |error: Error| JobError { stage: stage.clone(), error }
+}
+
+/// Fails with an `Interrupted` error at `stage` once `cancelled()` is true.
+fn check(cancelled: &dyn Fn() -> bool, stage: Stage) -> Result<(), JobError> {
+    if cancelled() {
+        let error = std::io::Error::new(std::io::ErrorKind::Interrupted, "interrupted").into();
+        Err(JobError { stage, error })
+    } else {
+        Ok(())
     }
 }
 

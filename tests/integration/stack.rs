@@ -375,3 +375,60 @@ fn run_processes_every_page_of_a_multi_page_tiff() {
         .stderr_has(&["3 pages", ".tif"]);
     assert!(!png.exists());
 }
+
+#[test]
+fn a_page_template_writes_one_file_per_page_and_a_failing_page_leaves_none() {
+    let page = |k: usize, w: usize, h: usize| {
+        raster(w, h, (0..w * h).map(|i| (1000 * k + 17 * i) as f32 / 65535.0).collect(), SampleType::U16)
+    };
+    let dir = Scratch::new();
+    let pages = [page(0, 3, 2), page(1, 3, 2), page(2, 3, 2)];
+    let input = dir.write(
+        "plate.tif",
+        &io::encode_tiff_pages(&pages.iter().collect::<Vec<_>>(), &tiff_options(SampleType::U16)).unwrap(),
+    );
+    let template = dir.path("{stem}-{page:02}.png").display().to_string();
+    let report = dir.path("report.json");
+    pumice(&[
+        "run",
+        &input.display().to_string(),
+        "-o",
+        &template,
+        "-s",
+        "invert",
+        "--report",
+        &report.display().to_string(),
+        "--sidecar",
+    ])
+    .ok();
+    for (k, page) in pages.iter().enumerate() {
+        let out = dir.path(&format!("plate-{:02}.png", k + 1));
+        let got = read_image(&out);
+        assert_eq!(got.metadata.source_sample, Some(SampleType::U16), "{}", out.display());
+        let codes: Vec<u32> =
+            got.planes()[0].as_slice().iter().map(|v| (v * 65535.0).round() as u32).collect();
+        let expected: Vec<u32> =
+            page.planes()[0].as_slice().iter().map(|v| 65535 - (v * 65535.0).round() as u32).collect();
+        assert_eq!(codes, expected, "page {}", k + 1);
+        assert!(dir.path(&format!("plate-{:02}.png.record.json", k + 1)).exists());
+    }
+    let text = std::fs::read_to_string(&report).unwrap();
+    let json: serde_json::Value = serde_json::from_str(&text).unwrap();
+    let entry = &json["files"][0];
+    assert_eq!(entry["pages"].as_array().unwrap().len(), 3, "{text}");
+    assert!(entry["pages"][2]["output"].as_str().unwrap().ends_with("plate-03.png"));
+    assert_eq!(entry["pages"][2]["output_sha256"].as_str().unwrap().len(), 64);
+
+    // Page 3 is too small for the crop: the input fails and leaves no page file.
+    let pages = [page(0, 3, 2), page(1, 3, 2), page(2, 2, 1)];
+    let input = dir.write(
+        "uneven.tif",
+        &io::encode_tiff_pages(&pages.iter().collect::<Vec<_>>(), &tiff_options(SampleType::U16)).unwrap(),
+    );
+    pumice(&["run", &input.display().to_string(), "-o", &template, "-s", "crop:width=3,height=2"])
+        .expect_code(1)
+        .stderr_has(&["uneven.tif", "crop"]);
+    for k in 1..=3 {
+        assert!(!dir.path(&format!("uneven-{k:02}.png")).exists(), "page {k} left behind");
+    }
+}

@@ -13,7 +13,7 @@ here="$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)"
 out="${1:-demo-output}"
 mkdir -p "$out"
 out="$(cd "$out" && pwd)"
-# Recipes name their frame files relative to the demo folder.
+# Inputs are named relative to the demo folder.
 cd "$here"
 
 pumice() {

@@ -33,7 +33,7 @@ pub fn step(text: &str) {
 
 /// Parses `text` as a recipe.
 pub fn recipe(text: &str) {
-    let _ = recipe::parse(text, "fuzz input");
+    let _ = recipe::parse(text, "fuzz input", None);
 }
 
 /// Expands `text` as an output-name template for a sample input.

@@ -25,7 +25,7 @@ pub fn run(cmd: RecipeCommand) -> Exit {
             return Exit::Usage;
         }
     };
-    match recipe::parse(&text, &file.display().to_string()) {
+    match recipe::parse(&text, &file.display().to_string(), Some(super::run::recipe_folder(&file))) {
         Ok(r) => {
             println!("{}: ok, {} step(s)", file.display(), r.pipeline.steps.len());
             for (i, s) in r.pipeline.steps.iter().enumerate() {

@@ -211,7 +211,8 @@ impl Setup {
             let text = std::fs::read_to_string(path)
                 .map_err(|e| format!("{}: cannot read the recipe: {e}", path.display()))?;
             recipe_modified = std::fs::metadata(path).and_then(|m| m.modified()).ok();
-            let r = recipe::parse(&text, &path.display().to_string()).map_err(|e| e.to_string())?;
+            let r = recipe::parse(&text, &path.display().to_string(), Some(recipe_folder(path)))
+                .map_err(|e| e.to_string())?;
             r.options.apply_to(&mut options);
             steps.extend(r.pipeline.steps);
         }
@@ -227,6 +228,11 @@ impl Setup {
         pipeline.max_pixels = options.limits.max_pixels;
         Ok(Setup { pipeline, options, recipe_modified })
     }
+}
+
+/// The folder a recipe file is in (relative file parameters are read from there).
+pub fn recipe_folder(recipe: &std::path::Path) -> &std::path::Path {
+    recipe.parent().unwrap_or(std::path::Path::new(""))
 }
 
 /// One input from standard input or to standard output.

@@ -18,9 +18,12 @@
 //! normalize = true
 //! ```
 
+use std::path::Path;
+
 use super::options::{self, OptionOverrides};
 use crate::error::Error;
-use crate::pipeline::{Pipeline, Step};
+use crate::ops::params::Kind;
+use crate::pipeline::{Pipeline, Step, registry};
 
 /// A parsed, checked recipe.
 #[derive(Debug)]
@@ -32,8 +35,11 @@ pub struct Recipe {
 const OPTION_KEYS: [&str; 9] =
     ["input-encoding", "depth", "meta", "format", "quality", "chroma", "domain", "background", "pixel-size"];
 
-/// Parses and checks a recipe; `origin` names it in errors.
-pub fn parse(text: &str, origin: &str) -> Result<Recipe, Error> {
+/// Parses and checks a recipe; `origin` names it in errors. File parameters
+/// (e.g. `flatfield`'s `dark` and `flat`) given as relative paths are taken
+/// relative to `folder`, the recipe file's folder, so a recipe and its frames
+/// can move together; without a folder they stay relative to the working folder.
+pub fn parse(text: &str, origin: &str, folder: Option<&Path>) -> Result<Recipe, Error> {
     let fail = |m: String| Error::Recipe(format!("recipe {origin}: {m}"));
     let table: toml::Table = toml::from_str(text).map_err(|e| fail(e.to_string().trim_end().to_string()))?;
     let mut options = OptionOverrides::default();
@@ -51,7 +57,7 @@ pub fn parse(text: &str, origin: &str) -> Result<Recipe, Error> {
                     .ok_or_else(|| fail("`step` must be an array of tables ([[step]])".into()))?;
                 for (i, item) in list.iter().enumerate() {
                     let t = item.as_table().ok_or_else(|| fail(format!("step {} is not a table", i + 1)))?;
-                    steps.push(read_step(t).map_err(|m| fail(format!("step {}: {m}", i + 1)))?);
+                    steps.push(read_step(t, folder).map_err(|m| fail(format!("step {}: {m}", i + 1)))?);
                 }
             }
             other => {
@@ -99,13 +105,23 @@ fn read_options(t: &toml::Table, o: &mut OptionOverrides) -> Result<(), String> 
     Ok(())
 }
 
-fn read_step(t: &toml::Table) -> Result<Step, String> {
+fn read_step(t: &toml::Table, folder: Option<&Path>) -> Result<Step, String> {
     let op =
         t.get("op").and_then(|v| v.as_str()).ok_or_else(|| "every step needs `op = \"NAME\"`".to_string())?;
+    let spec = registry::find(op).map_err(|e| e.to_string())?;
     let mut params = Vec::new();
     for (key, value) in t {
         if key != "op" {
-            params.push((Some(key.clone()), value_text(key, value)?));
+            let mut text = value_text(key, value)?;
+            let is_file = spec.params.iter().any(|p| p.name == key && matches!(p.kind, Kind::File));
+            if let Some(folder) = folder
+                && is_file
+                && text != "none"
+                && Path::new(&text).is_relative()
+            {
+                text = folder.join(&text).to_string_lossy().into_owned();
+            }
+            params.push((Some(key.clone()), text));
         }
     }
     Step::build(op, &params).map_err(|e| e.to_string())
@@ -150,6 +166,7 @@ mod tests {
             "[options]\ndepth = \"16\"\nquality = 80\n\n[[step]]\nop = \"gauss\"\nsigma = 2\n\n\
              [[step]]\nop = \"convolve\"\nkernel = [[1, 2, 1], [2, 4, 2], [1, 2, 1]]\nnormalize = true\n",
             "t.toml",
+            None,
         )
         .unwrap();
         assert_eq!(r.options.sample, Some(Some(SampleType::U16)));
@@ -159,15 +176,25 @@ mod tests {
     }
 
     #[test]
+    fn frame_paths_are_relative_to_the_recipe_folder() {
+        let text = "[[step]]\nop = \"flatfield\"\ndark = \"frames/dark.tif\"\nflat = \"/abs/flat.tif\"\n";
+        // The frames do not exist: the error names the path the recipe resolved.
+        let e = parse(text, "lab/r.toml", Some(Path::new("lab"))).unwrap_err().to_string();
+        assert!(e.contains("lab/frames/dark.tif"), "{e}");
+        let e = parse(text, "r.toml", None).unwrap_err().to_string();
+        assert!(e.contains("frames/dark.tif") && !e.contains("lab/"), "{e}");
+    }
+
+    #[test]
     fn errors_name_the_place() {
-        let e = parse("[[step]]\nop = \"gauss\"\nsigma = = 2\n", "bad.toml").unwrap_err().to_string();
+        let e = parse("[[step]]\nop = \"gauss\"\nsigma = = 2\n", "bad.toml", None).unwrap_err().to_string();
         assert!(e.contains("bad.toml") && e.contains("line 3"), "{e}");
-        let e = parse("[[step]]\nop = \"gauss\"\nsigmaa = 2\n", "r").unwrap_err().to_string();
+        let e = parse("[[step]]\nop = \"gauss\"\nsigmaa = 2\n", "r", None).unwrap_err().to_string();
         assert!(e.contains("step 1") && e.contains("did you mean `sigma`"), "{e}");
-        let e = parse("[option]\n", "r").unwrap_err().to_string();
+        let e = parse("[option]\n", "r", None).unwrap_err().to_string();
         assert!(e.contains("did you mean `options`"), "{e}");
-        let e = parse("[options]\ndepht = \"8\"\n", "r").unwrap_err().to_string();
+        let e = parse("[options]\ndepht = \"8\"\n", "r", None).unwrap_err().to_string();
         assert!(e.contains("did you mean `depth`"), "{e}");
-        assert!(parse("", "r").unwrap().pipeline.steps.is_empty());
+        assert!(parse("", "r", None).unwrap().pipeline.steps.is_empty());
     }
 }

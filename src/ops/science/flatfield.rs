@@ -27,7 +27,10 @@ overall level. Pixels with no usable gain are left uncorrected for gain (gain 1,
 dark still subtracted) and counted: reported as `bad flat pixels` (`pumice run
 -v`). A flat with no pixel above its dark (e.g. all zero) is an error.
 The frames (`dark=FILE`, `flat=FILE`, either may be left out but not both) are
-read once when the step is built, with the default decode limits; integer codes
+read once when the step is built, with the default decode limits. A relative
+path in a recipe file is taken from the recipe's folder; on the command line
+(`-s flatfield:dark=…`) from the working folder, and there it cannot hold a
+comma (the step grammar's separator). Integer codes
 map to [0, 1] like the image's. They are sensor data, so by default they are
 taken as linear (`frames=linear`), which matches images read with
 `--input-encoding linear`; `frames=srgb` decodes them through the IEC 61966-2-1

@@ -5,6 +5,7 @@
 
 use multiversion::multiversion;
 
+use super::network::{Comparator, selection_network};
 use crate::error::{Error, ParamError};
 use crate::ops::params::{self, Kind, OpSpec, ParamSpec};
 use crate::ops::{Domain, Operator, filter_planes};
@@ -154,67 +155,11 @@ fn select_median(p: &Plane, window: &[(isize, usize)], r: usize, border: Border)
     out
 }
 
-/// One comparator of a network: `lo ← min(a, b)`, `hi ← max(a, b)`, either
-/// half skipped when nothing downstream reads it.
-#[derive(Clone, Copy, Debug)]
-struct Comparator {
-    a: usize,
-    b: usize,
-    keep_min: bool,
-    keep_max: bool,
-}
-
-/// Batcher's odd–even merge sort on `2^k ≥ n` wires, with wires `n..` fixed
-/// at +∞ and folded away, pruned to the comparators the middle output
-/// (index `n / 2`) depends on. Returns the comparators and the wire that
-/// holds the median at the end.
+/// The network that selects the middle (index `n / 2`) of `n` values, and the
+/// slot that holds it at the end.
 fn median_network(n: usize) -> (Vec<Comparator>, usize) {
-    let size = n.next_power_of_two();
-    let mut pairs = Vec::new();
-    // Batcher's odd–even merge sort (Knuth, TAOCP vol. 3, §5.3.4, exercise 32).
-    let mut p = 1;
-    while p < size {
-        let mut k = p;
-        while k >= 1 {
-            for j in (k % p..size - k).step_by(2 * k) {
-                for i in 0..k.min(size - j - k) {
-                    if (i + j) / (2 * p) == (i + j + k) / (2 * p) {
-                        pairs.push((i + j, i + j + k));
-                    }
-                }
-            }
-            k /= 2;
-        }
-        p *= 2;
-    }
-    // Fold away +∞ wires: `label[w]` is the value slot on wire w, or None for +∞.
-    let mut label: Vec<Option<usize>> = (0..size).map(|w| (w < n).then_some(w)).collect();
-    let mut ops = Vec::new();
-    for (lo, hi) in pairs {
-        match (label[lo], label[hi]) {
-            (Some(a), Some(b)) => ops.push((a, b, lo, hi)),
-            (None, Some(b)) => {
-                label[lo] = Some(b);
-                label[hi] = None;
-            }
-            _ => {} // the +∞ is already on the high wire
-        }
-    }
-    // Each op writes min into slot a and max into slot b. Prune backwards.
-    let out_slot = label[n / 2].unwrap_or_else(|| unreachable!("the middle wire holds a value"));
-    let mut live = vec![false; n];
-    live[out_slot] = true;
-    let mut kept = Vec::new();
-    for &(a, b, _, _) in ops.iter().rev() {
-        let (keep_min, keep_max) = (live[a], live[b]);
-        if keep_min || keep_max {
-            kept.push(Comparator { a, b, keep_min, keep_max });
-            live[a] = true;
-            live[b] = true;
-        }
-    }
-    kept.reverse();
-    (kept, out_slot)
+    let (net, out) = selection_network(n, &[n / 2]);
+    (net, out[0])
 }
 
 #[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]

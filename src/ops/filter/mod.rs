@@ -6,6 +6,7 @@ mod boxmean;
 mod engine;
 mod fastgauss;
 mod median;
+pub(crate) mod network;
 pub(crate) mod rows;
 mod sharpen;
 

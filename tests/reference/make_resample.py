@@ -13,6 +13,17 @@ Reference functions (versions pinned in requirements.txt, recorded in the manife
   mode='constant', cval=0, preserve_range=True)`` (bilinear, counter-clockwise
   degrees, about ((cols-1)/2, (rows-1)/2)) on a crop of the bundled
   ``camera`` sample, against ``rotate:angle=-A,filter=bilinear,expand=false,fill=black``.
+* scikit-image ``transform.resize(img, shape, order=1, mode='symmetric',
+  anti_aliasing=False)`` (bilinear at pixel centres) upscaling a crop of
+  ``camera``, against ``resize:filter=bilinear`` (same sample positions, same
+  edge rule: Pumice's ``reflect`` is numpy's ``symmetric``).
+* scikit-image ``transform.resize(img, shape, order=1, anti_aliasing=True)``
+  reducing a band-limited pattern (a sum of cosines far below the output's
+  Nyquist frequency) together with the pattern's exact values at the output
+  pixel centres: scikit-image blurs with a Gaussian (σ = (factor − 1) / 2) and
+  interpolates, Pumice filters with the widened lanczos3 kernel — different
+  methods, so the check is that both reproduce the underlying pattern, and
+  Pumice at least as closely as scikit-image does (its deviation is recorded).
 
 Files are .npy (format 1.0, '<f4', C order, 2-D). Pillow's inputs and outputs
 hold 8-bit codes as floats. manifest.toml lists every case.
@@ -84,6 +95,42 @@ def make(folder):
         cases.append(dict(kind="rotate", filter="bilinear", angle=angle, input="rotate-input.npy", output=name,
                           reference=f"skimage.transform.rotate(angle={angle}, resize=False, order=1, "
                                     f"mode='constant', cval=0)"))
+
+    up_in = (data.camera()[240:264, 200:232] / 255.0).astype(np.float32)
+    save(folder, "skimage-up-input.npy", up_in)
+    for shape in [(60, 80), (72, 77)]:
+        out = transform.resize(up_in.astype(np.float64), shape, order=1, mode="symmetric", anti_aliasing=False)
+        name = f"skimage-up-{shape[1]}x{shape[0]}.npy"
+        save(folder, name, out)
+        cases.append(dict(kind="skimage-up", filter="bilinear", width=shape[1], height=shape[0],
+                          input="skimage-up-input.npy", output=name,
+                          reference=f"skimage.transform.resize({shape}, order=1, mode='symmetric', "
+                                    "anti_aliasing=False)"))
+
+    # A pattern with every frequency at most 1/8 cycle per output pixel.
+    def pattern(u, v):
+        return (0.5 + 0.15 * np.cos(2 * np.pi * (0.011 * u + 0.007 * v) + 0.3)
+                + 0.1 * np.cos(2 * np.pi * (-0.006 * u + 0.017 * v) + 1.1))
+
+    yy, xx = np.mgrid[0:192, 0:256].astype(np.float64)
+    down_in = pattern(xx, yy)
+    save(folder, "skimage-down-input.npy", down_in)
+    for factor in (4, 8):
+        shape = (192 // factor, 256 // factor)
+        out = transform.resize(down_in, shape, order=1, anti_aliasing=True)
+        # The output pixel (X, Y) is centred on source coordinate (X + 0.5)·f − 0.5.
+        oy, ox = np.mgrid[0:shape[0], 0:shape[1]].astype(np.float64)
+        truth = pattern((ox + 0.5) * factor - 0.5, (oy + 0.5) * factor - 0.5)
+        # Compared away from the edges (3 output pixels: the lanczos3 support),
+        # where neither method's edge rule enters.
+        inner = (slice(3, -3), slice(3, -3))
+        name, truth_name = f"skimage-down-{factor}.npy", f"skimage-down-{factor}-exact.npy"
+        save(folder, name, out)
+        save(folder, truth_name, truth)
+        cases.append(dict(kind="skimage-down", filter="lanczos3", width=shape[1], height=shape[0],
+                          input="skimage-down-input.npy", output=name, exact=truth_name, margin=3,
+                          reference_error=float(np.max(np.abs(out - truth)[inner])),
+                          reference="skimage.transform.resize(order=1, anti_aliasing=True)"))
 
     lines = ["# Written by make_resample.py; do not edit.",
              f'numpy = "{np.__version__}"', f'pillow = "{PIL.__version__}"', f'opencv = "{cv2.__version__}"',

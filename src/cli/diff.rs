@@ -7,7 +7,7 @@ use std::path::PathBuf;
 use clap::Args;
 
 use super::inspect::{channel_names, load, write_png};
-use super::json::Json;
+use super::json::{Value, obj, opt, text};
 use super::{Exit, report};
 use pumice::io::file::Location;
 use pumice::measure::{compare, plot};
@@ -137,35 +137,35 @@ pub fn run(args: DiffArgs) -> Exit {
     });
     let names = channel_names(a.layout());
     if args.json {
-        let per = |v: &[f64]| Json::Obj(names.iter().zip(v).map(|(n, &x)| (*n, Json::Num(x))).collect());
+        let per = |v: &[f64]| obj(names.iter().zip(v).map(|(n, &x)| (*n, Value::from(x))).collect());
         let l = &result.largest;
-        let json = Json::Obj(vec![
-            ("a", Json::str(&name_a)),
-            ("b", Json::str(&name_b)),
-            ("width", Json::int(a.width() as u64)),
-            ("height", Json::int(a.height() as u64)),
-            ("layout", Json::str(a.layout().name())),
-            ("data_range", full.map_or(Json::Num(1.0), Json::int)),
-            ("mse", Json::Num(result.mse)),
-            ("psnr", Json::Num(result.psnr)),
+        let json = obj(vec![
+            ("a", text(&name_a)),
+            ("b", text(&name_b)),
+            ("width", Value::from(a.width())),
+            ("height", Value::from(a.height())),
+            ("layout", text(a.layout().name())),
+            ("data_range", full.map_or(Value::from(1.0), Value::from)),
+            ("mse", Value::from(result.mse)),
+            ("psnr", Value::from(result.psnr)),
             ("psnr_channels", per(&result.psnr_per_channel)),
-            ("ssim", Json::opt(result.ssim, Json::Num)),
-            ("ssim_on", Json::str(if args.channels { "channels" } else { "luma" })),
-            ("ssim_channels", if args.channels { per(&result.ssim_per_channel) } else { Json::Null }),
+            ("ssim", opt(result.ssim, Value::from)),
+            ("ssim_on", text(if args.channels { "channels" } else { "luma" })),
+            ("ssim_channels", if args.channels { per(&result.ssim_per_channel) } else { Value::Null }),
             (
                 "largest_difference",
-                Json::Obj(vec![
-                    ("value", Json::Num(l.value)),
-                    ("code", Json::opt(largest_code, Json::Num)),
-                    ("x", Json::int(l.x as u64)),
-                    ("y", Json::int(l.y as u64)),
-                    ("channel", Json::str(names[l.channel])),
+                obj(vec![
+                    ("value", Value::from(l.value)),
+                    ("code", opt(largest_code, Value::from)),
+                    ("x", Value::from(l.x)),
+                    ("y", Value::from(l.y)),
+                    ("channel", text(names[l.channel])),
                 ]),
             ),
-            ("differing_pixels", Json::int(result.differing_pixels)),
-            ("pixels", Json::int((a.width() * a.height()) as u64)),
-            ("passed", Json::Bool(failures.is_empty())),
-            ("failures", Json::Arr(failures.iter().map(Json::str).collect())),
+            ("differing_pixels", Value::from(result.differing_pixels)),
+            ("pixels", Value::from(a.width() * a.height())),
+            ("passed", Value::Bool(failures.is_empty())),
+            ("failures", Value::Array(failures.iter().map(text).collect())),
         ]);
         println!("{json}");
     } else {

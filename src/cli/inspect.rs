@@ -7,7 +7,7 @@ use std::path::{Path, PathBuf};
 
 use clap::Args;
 
-use super::json::Json;
+use super::json::{Value, obj, opt, text};
 use super::{Exit, report};
 use pumice::io::file::{Location, read_input, write_atomic};
 use pumice::io::{DecodeOptions, Format, Limits, decode};
@@ -182,8 +182,8 @@ pub fn run(args: InspectArgs) -> Exit {
                 }
                 if args.json {
                     let mut entry = to_json(&found);
-                    if let (Json::Obj(fields), Some(skew)) = (&mut entry, &skew) {
-                        fields.push(("skew", skew_json(skew)));
+                    if let (Value::Object(fields), Some(skew)) = (&mut entry, &skew) {
+                        fields.insert("skew".into(), skew_json(skew));
                     }
                     json.push(entry);
                 } else {
@@ -207,13 +207,13 @@ pub fn run(args: InspectArgs) -> Exit {
                 report(format!("{name}: {e}"));
                 failed = true;
                 if args.json {
-                    json.push(Json::Obj(vec![("file", Json::str(name)), ("error", Json::str(e))]));
+                    json.push(obj(vec![("file", text(name)), ("error", text(e))]));
                 }
             }
         }
     }
     if args.json {
-        println!("{}", Json::Arr(json));
+        println!("{}", Value::Array(json));
     }
     if failed { Exit::InputFailed } else { Exit::Done }
 }
@@ -224,13 +224,13 @@ fn skew_of(raster: &Raster) -> Result<SkewEstimate, String> {
     measure_skew(&gray, 10.0).map_err(|e| e.to_string())
 }
 
-fn skew_json(skew: &Result<SkewEstimate, String>) -> Json {
+fn skew_json(skew: &Result<SkewEstimate, String>) -> Value {
     match skew {
-        Ok(s) => Json::Obj(vec![
-            ("degrees_clockwise", Json::opt(s.degrees, Json::Num)),
-            ("confidence", Json::Num(s.confidence)),
+        Ok(s) => obj(vec![
+            ("degrees_clockwise", opt(s.degrees, Value::from)),
+            ("confidence", Value::from(s.confidence)),
         ]),
-        Err(e) => Json::Obj(vec![("error", Json::str(e.clone()))]),
+        Err(e) => obj(vec![("error", text(e.clone()))]),
     }
 }
 
@@ -284,74 +284,71 @@ fn bits(s: SampleType) -> u32 {
     }
 }
 
-fn resolution_json(r: &Resolution) -> Json {
+fn resolution_json(r: &Resolution) -> Value {
     let size = metadata::pixel_size_um(r);
-    Json::Obj(vec![
-        ("x", Json::Num(r.x)),
-        ("y", Json::Num(r.y)),
-        ("unit", Json::str(unit_name(r.unit))),
-        ("pixel_width_um", Json::opt(size, |s| Json::Num(s.0))),
-        ("pixel_height_um", Json::opt(size, |s| Json::Num(s.1))),
+    obj(vec![
+        ("x", Value::from(r.x)),
+        ("y", Value::from(r.y)),
+        ("unit", text(unit_name(r.unit))),
+        ("pixel_width_um", opt(size, |s| Value::from(s.0))),
+        ("pixel_height_um", opt(size, |s| Value::from(s.1))),
     ])
 }
 
 /// The summary numbers of a channel multiplied by `scale` (1 for values, full scale for codes).
-fn numbers_json(c: &ChannelReport, scale: f64) -> Vec<(&'static str, Json)> {
+fn numbers_json(c: &ChannelReport, scale: f64) -> Vec<(&'static str, Value)> {
     let s = &c.stats;
     let mut v = vec![
-        ("min", Json::Num(s.min * scale)),
-        ("max", Json::Num(s.max * scale)),
-        ("mean", Json::Num(s.mean * scale)),
-        ("std", Json::Num(s.std * scale)),
+        ("min", Value::from(s.min * scale)),
+        ("max", Value::from(s.max * scale)),
+        ("mean", Value::from(s.mean * scale)),
+        ("std", Value::from(s.std * scale)),
     ];
     const KEYS: [&str; 5] = ["p1", "p5", "p50", "p95", "p99"];
     debug_assert_eq!(KEYS.len(), PERCENTILES.len());
     for (key, &(_, value)) in KEYS.iter().zip(&s.percentiles) {
-        v.push((key, Json::Num(value * scale)));
+        v.push((key, Value::from(value * scale)));
     }
-    v.push(("noise_sigma", Json::opt(c.noise, |n| Json::Num(n * scale))));
+    v.push(("noise_sigma", opt(c.noise, |n| Value::from(n * scale))));
     v
 }
 
-fn to_json(f: &Inspection) -> Json {
+fn to_json(f: &Inspection) -> Value {
     let full = f.sample.max_code();
     let channels = f
         .channels
         .iter()
         .map(|c| {
-            let mut fields = vec![("channel", Json::str(c.name)), ("count", Json::int(c.stats.count))];
+            let mut fields = vec![("channel", text(c.name)), ("count", Value::from(c.stats.count))];
             fields.extend(numbers_json(c, 1.0));
-            fields.push(("codes", Json::opt(full, |m| Json::Obj(numbers_json(c, f64::from(m))))));
-            fields.push(("at_zero", Json::int(c.stats.at_zero)));
-            fields.push(("at_full", Json::int(c.stats.at_full)));
-            fields.push(("non_finite", Json::int(c.stats.non_finite)));
-            fields.push(("histogram", Json::Arr(c.histogram.iter().map(|&n| Json::int(n)).collect())));
-            Json::Obj(fields)
+            fields.push(("codes", opt(full, |m| obj(numbers_json(c, f64::from(m))))));
+            fields.push(("at_zero", Value::from(c.stats.at_zero)));
+            fields.push(("at_full", Value::from(c.stats.at_full)));
+            fields.push(("non_finite", Value::from(c.stats.non_finite)));
+            fields.push(("histogram", Value::Array(c.histogram.iter().map(|&n| Value::from(n)).collect())));
+            obj(fields)
         })
         .collect();
-    Json::Obj(vec![
-        ("file", Json::str(&f.file)),
-        ("format", Json::str(f.format.name())),
-        ("width", Json::int(f.width as u64)),
-        ("height", Json::int(f.height as u64)),
-        ("layout", Json::str(f.layout.name())),
-        ("channels", Json::Arr(channel_names(f.layout).iter().map(|n| Json::str(*n)).collect())),
-        ("sample", Json::str(sample_key(f.sample))),
-        ("bits", Json::int(bits(f.sample))),
-        ("full_scale", Json::opt(full, Json::int)),
-        ("encoding", Json::str(f.encoding)),
+    obj(vec![
+        ("file", text(&f.file)),
+        ("format", text(f.format.name())),
+        ("width", Value::from(f.width)),
+        ("height", Value::from(f.height)),
+        ("layout", text(f.layout.name())),
+        ("channels", Value::Array(channel_names(f.layout).iter().map(|n| text(*n)).collect())),
+        ("sample", text(sample_key(f.sample))),
+        ("bits", Value::from(bits(f.sample))),
+        ("full_scale", opt(full, Value::from)),
+        ("encoding", text(f.encoding)),
         (
             "icc",
-            Json::opt(f.icc_bytes, |bytes| {
-                Json::Obj(vec![
-                    ("bytes", Json::int(bytes as u64)),
-                    ("version", Json::opt(f.icc.as_ref(), |i| Json::str(&i.version))),
-                    ("class", Json::opt(f.icc.as_ref(), |i| Json::str(&i.class))),
-                    ("colour_space", Json::opt(f.icc.as_ref(), |i| Json::str(&i.colour_space))),
-                    (
-                        "description",
-                        Json::opt(f.icc.as_ref().and_then(|i| i.description.as_ref()), Json::str),
-                    ),
+            opt(f.icc_bytes, |bytes| {
+                obj(vec![
+                    ("bytes", Value::from(bytes)),
+                    ("version", opt(f.icc.as_ref(), |i| text(&i.version))),
+                    ("class", opt(f.icc.as_ref(), |i| text(&i.class))),
+                    ("colour_space", opt(f.icc.as_ref(), |i| text(&i.colour_space))),
+                    ("description", opt(f.icc.as_ref().and_then(|i| i.description.as_ref()), text)),
                 ])
             }),
         ),
@@ -359,19 +356,19 @@ fn to_json(f: &Inspection) -> Json {
             "exif",
             if f.exif_present {
                 let e = f.exif.clone().unwrap_or_default();
-                Json::Obj(vec![
-                    ("readable", Json::Bool(f.exif.is_some())),
-                    ("orientation", Json::opt(e.orientation, Json::int)),
-                    ("date_time_original", Json::opt(e.date_time_original, Json::str)),
-                    ("resolution", Json::opt(e.resolution.as_ref(), resolution_json)),
+                obj(vec![
+                    ("readable", Value::Bool(f.exif.is_some())),
+                    ("orientation", opt(e.orientation, Value::from)),
+                    ("date_time_original", opt(e.date_time_original, text)),
+                    ("resolution", opt(e.resolution.as_ref(), resolution_json)),
                 ])
             } else {
-                Json::Null
+                Value::Null
             },
         ),
-        ("resolution", Json::opt(f.resolution.as_ref(), resolution_json)),
-        ("histogram_range", Json::Arr(vec![Json::Num(f.range.0), Json::Num(f.range.1)])),
-        ("stats", Json::Arr(channels)),
+        ("resolution", opt(f.resolution.as_ref(), resolution_json)),
+        ("histogram_range", Value::Array(vec![Value::from(f.range.0), Value::from(f.range.1)])),
+        ("stats", Value::Array(channels)),
     ])
 }
 

@@ -285,7 +285,9 @@ fn diff_json_fields_and_identical_images() {
     }
     let out = pumice(&["diff", "--json", &a, &a, "--min-psnr", "100"]).ok().stdout();
     assert!(
-        out.contains("\"psnr\":null") && out.contains("\"ssim\":1") && out.contains("\"differing_pixels\":0"),
+        out.contains("\"psnr\":null")
+            && out.contains("\"ssim\":1.0")
+            && out.contains("\"differing_pixels\":0"),
         "{out}"
     );
 }
@@ -356,8 +358,8 @@ fn inspect_float_images_report_values_and_count_non_finite_samples() {
         "\"full_scale\":null",
         "\"encoding\":\"linear\"",
         "\"codes\":null",
-        "\"histogram_range\":[-1,2.5]",
-        "\"min\":-1,\"max\":2.5",
+        "\"histogram_range\":[-1.0,2.5]",
+        "\"min\":-1.0,\"max\":2.5",
         "\"non_finite\":1",
     ] {
         assert!(out.contains(field), "missing {field} in {out}");

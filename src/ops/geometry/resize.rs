@@ -116,11 +116,7 @@ fn horizontal(src: &Plane, wx: &Weights, out_w: usize) -> Result<Plane, Error> {
     let mut out = Plane::zeros(out_w, src.height())?;
     tile::for_each_band(&mut out, tile::band_rows(out_w, 0), |y0, band| {
         for (i, row) in band.chunks_exact_mut(out_w).enumerate() {
-            let input = src.row(y0 + i);
-            for (x, o) in row.iter_mut().enumerate() {
-                let taps = &input[wx.start[x]..wx.start[x] + wx.count[x]];
-                *o = taps.iter().zip(wx.of(x)).map(|(a, b)| a * b).sum();
-            }
+            rows::weighted_gather(row, src.row(y0 + i), &wx.start, &wx.count, &wx.weights, wx.taps);
         }
     });
     Ok(out)

@@ -1007,7 +1007,10 @@ mod tests {
     //! colour keeps its channel ratios (hue and saturation), NaN kept; clahe:
     //! one tile with no clipping equals equalize (up to the bin grid), a 1×1
     //! image, more tiles than pixels, bad tiles/clip rejected, constant tiles,
-    //! no seams (interpolated maps are continuous), serial = parallel.
+    //! no seams (interpolated maps are continuous), serial = parallel;
+    //! lightness=lstar: hue and chroma kept where nothing clips, the L*
+    //! histogram flat, gray input unaffected, a non-RGB model refused; the
+    //! block-wise code path equals the per-sample map, NaN and ±∞ included.
     use super::*;
     use crate::raster::{Encoding, Layout, Plane};
 
@@ -1226,6 +1229,120 @@ mod tests {
         assert_eq!(per.planes()[3], codes_rgba(16, 8, |_, _, _| 0).planes()[3]);
         // Each channel on its own: its largest value maps to 1.
         assert!(per.planes()[..3].iter().all(|p| p.as_slice().contains(&1.0)));
+    }
+
+    /// L*, C*ab and hab of every pixel of an RGB raster (CIE 15:2004 §8.2.1 via color::models).
+    fn lch_of(r: &Raster) -> Vec<[f32; 3]> {
+        use crate::raster::ColourModel::{Lch, Rgb};
+        let p = r.planes();
+        (0..r.width() * r.height())
+            .map(|i| {
+                let c = [0, 1, 2].map(|k| p[k].as_slice()[i]);
+                crate::color::models::convert_pixel(Rgb, Lch, c, false)
+            })
+            .collect()
+    }
+
+    /// A 64×64 image of 4096 distinct, weakly coloured codes (chroma up to about
+    /// 12, so L* can move anywhere without leaving the sRGB gamut).
+    fn pastel() -> Raster {
+        codes_rgba(64, 64, |c, x, y| {
+            let base = 40 + (x * 64 + y) * 170 / 4096;
+            (base + [(x % 8) * 2, (y % 8) * 2, ((x + y) % 8) * 2][c]) as u32
+        })
+    }
+
+    #[test]
+    fn lstar_equalize_keeps_hue_and_chroma_and_flattens_lstar() {
+        let r = pastel();
+        let out = run("equalize:lightness=lstar", r.clone());
+        assert_eq!(out.planes()[3], r.planes()[3], "alpha kept");
+        let (before, after) = (lch_of(&r), lch_of(&out));
+        // Hue and chroma: a*, b* are held as f32 between the two f64 conversions
+        // and the output as f32 R', G', B' (relative error 2⁻²⁴, which the steep
+        // Lab cube root near black magnifies): 1e-4 in C*ab and, for C*ab ≥ 1,
+        // 0.01° in hue bound it ten times over (measured worst 9.1e-6 and 2.4e-4°).
+        // Pixels pushed to L* near 0 or 100 leave the narrow gamut there and clip;
+        // they are counted, not compared.
+        let (mut dc, mut dh, mut clipped) = (0.0f32, 0.0f32, 0);
+        for (i, (b, a)) in before.iter().zip(&after).enumerate() {
+            if out.planes()[..3].iter().any(|p| !(p.as_slice()[i] > 0.0 && p.as_slice()[i] < 1.0)) {
+                clipped += 1;
+                continue;
+            }
+            dc = dc.max((a[1] - b[1]).abs());
+            if b[1] >= 1.0 {
+                let d = (a[2] - b[2]).abs();
+                dh = dh.max(d.min(360.0 - d));
+            }
+        }
+        assert!(dc < 1e-4 && dh < 0.01, "chroma moved by {dc}, hue by {dh}°");
+        assert!(clipped < 4096 / 20, "{clipped} pixels clipped");
+        eprintln!("worst chroma change {dc:e}, hue {dh:e}°, {clipped} clipped pixels");
+        // L* histogram of the output in 10 bins of 10 L* each: the 4096 distinct
+        // L* values each get their own rank, so each bin holds 409.6 ± a few
+        // (ranks falling on bin edges, float binning of L*/100 in 65536 bins).
+        let mut h = [0usize; 10];
+        for a in &after {
+            h[((a[0] / 10.0) as usize).min(9)] += 1;
+        }
+        let (lo, hi) = (*h.iter().min().unwrap(), *h.iter().max().unwrap());
+        assert!(lo >= 405 && hi <= 414, "L* histogram {h:?}");
+        // The input was far from flat in L*: most pixels in a few bins.
+        let mut h0 = [0usize; 10];
+        before.iter().for_each(|b| h0[((b[0] / 10.0) as usize).min(9)] += 1);
+        assert!(h0.iter().filter(|&&c| c == 0).count() >= 2, "{h0:?}");
+    }
+
+    #[test]
+    fn lstar_clahe_keeps_hue_and_chroma() {
+        let r = pastel();
+        let out = run("clahe:tiles=4,lightness=lstar", r.clone());
+        let (before, after) = (lch_of(&r), lch_of(&out));
+        let mut moved = 0;
+        for (i, (b, a)) in before.iter().zip(&after).enumerate() {
+            if out.planes()[..3].iter().any(|p| !(p.as_slice()[i] > 0.0 && p.as_slice()[i] < 1.0)) {
+                continue;
+            }
+            assert!((a[1] - b[1]).abs() < 1e-4, "chroma {b:?} → {a:?}");
+            if b[1] >= 1.0 {
+                let d = (a[2] - b[2]).abs();
+                assert!(d.min(360.0 - d) < 0.01, "hue {b:?} → {a:?}");
+            }
+            moved += usize::from((a[0] - b[0]).abs() > 1.0);
+        }
+        assert!(moved > 2000, "clahe changed L* of only {moved} pixels");
+    }
+
+    #[test]
+    fn lightness_choice_does_not_touch_gray_or_non_rgb_models() {
+        let p = Plane::from_fn(40, 30, |x, y| ((x * 7 + y * 3) % 256) as f32 / 255.0).unwrap();
+        let mut g = Raster::new(vec![p], Layout::Gray, Encoding::Srgb).unwrap();
+        g.levels = Some(255);
+        for op in ["equalize", "clahe:tiles=3"] {
+            let sep = if op.contains(':') { ',' } else { ':' };
+            let a = run(&format!("{op}{sep}lightness=luma"), g.clone());
+            let b = run(&format!("{op}{sep}lightness=lstar"), g.clone());
+            assert_eq!(a.planes(), b.planes(), "{op}");
+        }
+        let mut lab = pastel();
+        lab.model = crate::raster::ColourModel::Lab;
+        let e = crate::pipeline::Step::parse("equalize:lightness=lstar").unwrap().op.apply(lab).unwrap_err();
+        assert!(e.to_string().contains("space:rgb"), "{e}");
+        // Saturated colours: where no channel clips, hue is kept too.
+        let vivid = codes_rgba(32, 32, |c, x, y| ((x * 8 + y * 3 * (c + 1)) % 256) as u32);
+        let out = run("equalize:lightness=lstar", vivid.clone());
+        let (before, after) = (lch_of(&vivid), lch_of(&out));
+        let mut kept = 0;
+        for (i, (b, a)) in before.iter().zip(&after).enumerate() {
+            let inside = out.planes()[..3].iter().all(|p| p.as_slice()[i] > 0.0 && p.as_slice()[i] < 1.0);
+            if inside && b[1] >= 1.0 {
+                let d = (a[2] - b[2]).abs();
+                assert!(d.min(360.0 - d) < 0.01 && (a[1] - b[1]).abs() < 1e-4, "{b:?} → {a:?}");
+                kept += 1;
+            }
+        }
+        assert!(kept > 100, "{kept}");
     }
 
     #[test]

@@ -430,3 +430,30 @@ fn clahe_against_scikit_image_equalize_adapthist() {
     }
     assert_eq!(n, 4);
 }
+
+/// The bad input issue 5 lists, through the binary: each is one clear line
+/// naming the step and what was expected, and nothing is written. Parameter
+/// errors are usage errors (exit 2); a rectangle outside this image is only
+/// known once the image is read, so that input fails (exit 1).
+#[test]
+fn bad_tone_and_colour_input_gives_one_clear_line() {
+    use crate::harness::{Scratch, pumice};
+    let s = Scratch::new();
+    let input = crate::cli::small_png(&s, "in.png").display().to_string();
+    let out = s.path("out.png").display().to_string();
+    let run = |step: &str| pumice(&["run", input.as_str(), "-o", out.as_str(), "-s", step]);
+    run("stretch:low=80,high=20").expect_code(2).one_line_error().stderr_has(&["percentiles out of order"]);
+    run("space:to=cmyk").expect_code(2).one_line_error().stderr_has(&["cmyk", "lab"]);
+    run("binarize:fixed,threshold=1.5").expect_code(2).one_line_error().stderr_has(&[
+        "step `binarize`",
+        "threshold",
+        "[0, 1]",
+        "1.5",
+    ]);
+    run("balance:rect,x=3,y=0,width=4,height=2")
+        .expect_code(1)
+        .one_line_error()
+        .stderr_has(&["step 1 (balance)", "outside the 4×3 image"]);
+    run("equalize:lightness=hsv").expect_code(2).one_line_error().stderr_has(&["lightness", "lstar"]);
+    assert_eq!(s.names(), ["in.png"]);
+}

@@ -804,11 +804,6 @@ impl Clahe {
         Ok(Clahe { tiles, clip, bins, per_channel, lightness })
     }
 
-    #[inline]
-    fn bin(&self, v: f32) -> usize {
-        ((v * self.bins as f32).max(0.0) as usize).min(self.bins - 1)
-    }
-
     /// The tile spans along an axis of `n` samples: `min(tiles, n)` tiles.
     fn spans(&self, n: usize) -> Vec<(usize, usize)> {
         let t = self.tiles.min(n);
@@ -828,17 +823,25 @@ impl Clahe {
         let lanes = if bins <= 4096 { 4 } else { 1 };
         let stride = bins + 1;
         let mut counts = vec![0u64; lanes * stride];
-        let slot = |v: f32| if v.is_nan() { bins } else { self.bin(v) };
+        // Bins a block at a time (a branch-free loop the compiler vectorises),
+        // NaN to the spare last slot.
+        let (scale, last) = (bins as f32, (bins - 1) as u32);
+        let mut slots = [0u32; histogram::CODE_BLOCK];
         for y in y0..y1 {
-            let row = &p.row(y)[x0..x1];
-            let mut groups = row.chunks_exact(lanes);
-            for g in &mut groups {
-                for (lane, &v) in g.iter().enumerate() {
-                    counts[lane * stride + slot(v)] += 1;
+            for segment in p.row(y)[x0..x1].chunks(histogram::CODE_BLOCK) {
+                for (s, &v) in slots.iter_mut().zip(segment) {
+                    let b = unit_bin(v, scale, last);
+                    *s = if v.is_nan() { bins as u32 } else { b };
                 }
-            }
-            for &v in groups.remainder() {
-                counts[slot(v)] += 1;
+                let mut groups = slots[..segment.len()].chunks_exact(lanes);
+                for g in &mut groups {
+                    for (lane, &b) in g.iter().enumerate() {
+                        counts[lane * stride + b as usize] += 1;
+                    }
+                }
+                for &b in groups.remainder() {
+                    counts[b as usize] += 1;
+                }
             }
         }
         let hist: Vec<u64> = (0..bins).map(|b| (0..lanes).map(|l| counts[l * stride + b]).sum()).collect();
@@ -917,20 +920,42 @@ impl Clahe {
             for (by, row) in band.chunks_exact_mut(w).enumerate() {
                 let (ty0, ty1, fy) = ny[y0 + by];
                 for &(xa, xb, t0, t1) in &runs {
-                    let (m00, m01, m10, m11) = (map(ty0, t0), map(ty0, t1), map(ty1, t0), map(ty1, t1));
-                    for (o, &fx) in row[xa..xb].iter_mut().zip(&fx[xa..xb]) {
-                        let v = *o;
-                        if v.is_nan() {
-                            continue;
-                        }
-                        let b = self.bin(v);
-                        let top = m00[b] + (m01[b] - m00[b]) * fx;
-                        let bottom = m10[b] + (m11[b] - m10[b]) * fx;
-                        *o = top + (bottom - top) * fy;
-                    }
+                    let maps = [map(ty0, t0), map(ty0, t1), map(ty1, t0), map(ty1, t1)];
+                    interpolate_run(&mut row[xa..xb], &fx[xa..xb], maps, fy);
                 }
             }
         });
+    }
+}
+
+/// The bin of `v` among `last + 1` equal bins over [0, 1]: floor(v·bins)
+/// clamped to 0..=last (values below 0 and NaN in bin 0, values from 1 up in
+/// the last; through u32, whose saturation clamps the same way).
+#[inline(always)]
+fn unit_bin(v: f32, scale: f32, last: u32) -> u32 {
+    ((v * scale).max(0.0) as u32).min(last)
+}
+
+/// Maps one run of a row, whose columns lie between the same two tile centres,
+/// through the four tile maps `[top left, top right, bottom left, bottom
+/// right]` (each `bins` long) with bilinear weights `fx` (per column) and `fy`:
+/// top = m00 + (m01 − m00)·fx, bottom = m10 + (m11 − m10)·fx, out = top +
+/// (bottom − top)·fy. NaN stays NaN. Branch-free, so it compiles to vector
+/// gathers where the CPU has them (run-time dispatch; no fused multiply-add,
+/// so every CPU gives the same result). Bins as in [`unit_bin`].
+#[multiversion::multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
+fn interpolate_run(row: &mut [f32], fx: &[f32], maps: [&[f32]; 4], fy: f32) {
+    let [m00, m01, m10, m11] = maps;
+    let bins = m00.len();
+    let (m01, m10, m11) = (&m01[..bins], &m10[..bins], &m11[..bins]);
+    let (scale, last) = (bins as f32, bins.saturating_sub(1) as u32);
+    for (o, &fx) in row.iter_mut().zip(fx) {
+        let v = *o;
+        let b = unit_bin(v, scale, last) as usize;
+        let top = m00[b] + (m01[b] - m00[b]) * fx;
+        let bottom = m10[b] + (m11[b] - m10[b]) * fx;
+        let out = top + (bottom - top) * fy;
+        *o = if v.is_nan() { v } else { out };
     }
 }
 

@@ -54,7 +54,7 @@ impl Binning {
             // f32 is exact enough: a stored code k/n (n ≤ 65535) is off by at most
             // 2⁻²⁴ relative, so v·n is within 0.01 of k and rounds to it (checked
             // for every 16-bit code in the tests).
-            Binning::Codes { n } => (((v * n as f32) + 0.5).max(0.0) as usize).min(n as usize),
+            Binning::Codes { n } => code_index(v, n),
             Binning::Range { lo, hi, bins } => {
                 let t = (f64::from(v) - lo) / (hi - lo) * bins as f64;
                 (t.floor().max(0.0) as usize).min(bins - 1)
@@ -82,6 +82,33 @@ impl Binning {
     }
 }
 
+/// The code `k` of a sample `k / n`: `round(v·n)` clamped to `0..=n`.
+#[inline(always)]
+pub fn code_index(v: f32, n: u32) -> usize {
+    (((v * n as f32) + 0.5).max(0.0) as usize).min(n as usize)
+}
+
+/// Samples per block of [`codes_of_block`].
+pub const CODE_BLOCK: usize = 1024;
+
+/// Writes [`code_index`]`(v, n)` of each sample of `samples` (at most
+/// [`CODE_BLOCK`]) to `codes` and says whether every sample was finite. The
+/// loop has no branches, so it compiles to vector instructions; the callers
+/// fall back to their per-sample path for a block holding NaN or ±∞.
+#[inline]
+pub fn codes_of_block(samples: &[f32], n: u32, codes: &mut [u16; CODE_BLOCK]) -> bool {
+    let nf = n as f32;
+    let mut finite = true;
+    for (c, &v) in codes.iter_mut().zip(samples) {
+        // Equal to code_index for every f32: clamping to 0..=n before the
+        // truncation gives the same integer as clamping after it, NaN included
+        // (NaN.max(0) = 0).
+        *c = ((v * nf) + 0.5).max(0.0).min(nf) as u16;
+        finite &= v.is_finite();
+    }
+    finite
+}
+
 /// The smallest and largest finite sample of `planes`, or `None` if there is none.
 pub fn finite_range(planes: &[&[f32]]) -> Option<(f32, f32)> {
     fn merge(a: Option<(f32, f32)>, b: Option<(f32, f32)>) -> Option<(f32, f32)> {
@@ -104,8 +131,69 @@ pub fn finite_range(planes: &[&[f32]]) -> Option<(f32, f32)> {
 /// computed as per-chunk histograms merged; the result does not depend on the
 /// number of threads.
 pub fn histogram(planes: &[&[f32]], binning: &Binning) -> Vec<u64> {
-    let bins = binning.bins();
     let chunks: Vec<&[f32]> = planes.iter().flat_map(|p| p.chunks(CHUNK)).collect();
+    match *binning {
+        Binning::Codes { n } if n < SMALL_CODES => small_code_histogram(&chunks, n),
+        _ => any_histogram(&chunks, binning),
+    }
+}
+
+/// Code counts below which [`histogram`] keeps interleaved per-chunk counters.
+const SMALL_CODES: u32 = 4096;
+
+/// Interleaved counters per chunk of the code histogram.
+const LANES: usize = 4;
+
+/// [`histogram`] for exact codes `k / n` with `n < SMALL_CODES` (8-bit sources):
+/// each chunk counts into `LANES` interleaved u32 histograms (one chunk holds
+/// fewer than 2³² samples), so a run of equal codes does not wait on one
+/// counter, and non-finite samples go to a spare last bin that is dropped.
+/// Codes are computed a block at a time ([`codes_of_block`]).
+fn small_code_histogram(chunks: &[&[f32]], n: u32) -> Vec<u64> {
+    let bins = n as usize + 1;
+    let stride = bins + 1;
+    let slot = |v: f32| if v.is_finite() { code_index(v, n) } else { bins };
+    chunks
+        .par_iter()
+        .fold(
+            || (vec![0u64; bins], vec![0u32; LANES * stride]),
+            |(mut total, mut lanes), chunk| {
+                lanes.iter_mut().for_each(|c| *c = 0);
+                let mut codes = [0u16; CODE_BLOCK];
+                for block in chunk.chunks(CODE_BLOCK) {
+                    if codes_of_block(block, n, &mut codes) {
+                        let mut quads = codes[..block.len()].chunks_exact(LANES);
+                        for q in &mut quads {
+                            for (lane, &c) in q.iter().enumerate() {
+                                lanes[lane * stride + usize::from(c)] += 1;
+                            }
+                        }
+                        for &c in quads.remainder() {
+                            lanes[usize::from(c)] += 1;
+                        }
+                    } else {
+                        block.iter().for_each(|&v| lanes[slot(v)] += 1);
+                    }
+                }
+                for (i, t) in total.iter_mut().enumerate() {
+                    *t += (0..LANES).map(|l| u64::from(lanes[l * stride + i])).sum::<u64>();
+                }
+                (total, lanes)
+            },
+        )
+        .map(|(total, _)| total)
+        .reduce(
+            || vec![0u64; bins],
+            |mut a, b| {
+                a.iter_mut().zip(&b).for_each(|(x, y)| *x += y);
+                a
+            },
+        )
+}
+
+/// [`histogram`] for any binning, one counter per bin.
+fn any_histogram(chunks: &[&[f32]], binning: &Binning) -> Vec<u64> {
+    let bins = binning.bins();
     chunks
         .par_iter()
         .fold(
@@ -195,6 +283,36 @@ mod tests {
             assert_eq!(b.index(-0.2), 0);
             assert_eq!(b.index(1.7), n as usize);
         }
+    }
+
+    #[test]
+    fn block_codes_equal_code_index_and_the_fast_histogram_equals_the_plain_one() {
+        // Every 8-bit code, its neighbouring f32 values, values outside 0..1 and
+        // the non-finite ones, in blocks of every kind (all finite, some not).
+        let mut s: Vec<f32> = Vec::new();
+        for k in 0..=255u32 {
+            let v = k as f32 / 255.0;
+            s.extend([v, f32::from_bits(v.to_bits() + 1), v - 0.5 / 255.0, v + 0.499 / 255.0]);
+        }
+        s.extend([-3.0, -0.0, 1.5, 1e30, -1e30]);
+        let finite_part = s.len();
+        s.extend([f32::NAN, f32::INFINITY, f32::NEG_INFINITY, 0.5]);
+        let mut codes = [0u16; CODE_BLOCK];
+        for block in s.chunks(CODE_BLOCK) {
+            codes_of_block(block, 255, &mut codes);
+            for (v, c) in block.iter().zip(codes) {
+                assert_eq!(usize::from(c), code_index(*v, 255), "{v}");
+            }
+        }
+        assert!(codes_of_block(&s[..finite_part.min(CODE_BLOCK)], 255, &mut codes));
+        assert!(!codes_of_block(&s[finite_part..], 255, &mut codes));
+        // The same counts through the interleaved code path and the one-counter path,
+        // here for a plane of 3 chunks with NaN and ±∞ in some blocks.
+        let big: Vec<f32> = (0..3 * CHUNK + 17).map(|i| s[(i * 7919) % s.len()]).collect();
+        let chunks: Vec<&[f32]> = big.chunks(CHUNK).collect();
+        let b = Binning::Codes { n: 255 };
+        assert_eq!(small_code_histogram(&chunks, 255), any_histogram(&chunks, &b));
+        assert_eq!(histogram(&[&big], &b), any_histogram(&chunks, &b));
     }
 
     #[test]

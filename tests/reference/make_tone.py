@@ -26,6 +26,37 @@ Reference functions and how their parameters map to Pumice's:
   the Rust test can allow a different 0/1 only where |x − T| is within
   rounding of a tie.
 
+* window:low=L,high=H,gamma=G  <->  numpy: clip((x - L)/(H - L), 0, 1) ** (1/G)
+  on x = codes/255 (float64), the formula of Pumice's `window` doc written out.
+* exposure:S  <->  numpy: decode(x) * 2**S with decode the IEC 61966-2-1:1999
+  §5.2 transfer (c <= 0.04045: c/12.92, else ((c + 0.055)/1.055)**2.4); the
+  result stays in linear light.
+* balance:gray-world | white-patch | rect  <->  numpy on lin = decode(x) as
+  float32: m_c = mean(lin_c) (over the rectangle for rect), gain_c =
+  mean(m)/m_c; white-patch p_c = numpy.percentile(lin_c, 99), gain_c =
+  max(p)/p_c (Buchsbaum 1980 gray world, Land & McCann 1971 white patch, as
+  Pumice's `balance` doc writes them); out = lin * gain.
+* space:lab then extract:l / extract:2  <->  colour.XYZ_to_Lab as above, L* and
+  b*; space:lch then extract:c <-> colour.Lab_to_LCHab, C*ab; space:hsv then
+  extract:s <-> colour.RGB_to_HSV(rgb), S.
+* clahe:tiles=T,clip=C,bins=256  <->  skimage.exposure.equalize_adapthist(
+  codes, kernel_size=side/T, clip_limit=C, nbins=256) on a crop whose side is
+  a multiple of T (so scikit-image pads nothing that a tile reads) and whose
+  codes span 0..255 (so its input rescale is only 8 -> 14 bits). Their clip
+  limits agree when C·pixels per tile is an integer (scikit-image floors
+  it); clip_limit=0 (no clipping) <-> clip=1. The rest differs and is
+  measured, not hidden: scikit-image requantises to 14 bits and bins by
+  1 + 16384 // nbins = 65 levels (253 bins used, Pumice one per code), hands
+  clipped counts back only to bins under the limit (integer steps), truncates
+  each map to an integer of 0..16383, puts each tile's centre half a pixel
+  off the pixel grid for even tile sides, and stretches its result to 0..1
+  by the result's min and max. The manifest records, per tile, the largest
+  share of pixels clipped away (`excess_share`), which bounds the
+  redistribution difference.
+
+RGB images are stored planar as a (3·height, width) array: red rows, then
+green, then blue.
+
 Inputs are crops of scikit-image's bundled sample images (skimage.data:
 camera, coins, moon, page) and seeded numpy.random.default_rng data. Integer
 images are stored as their codes in float32 (exact); Pumice divides by 255
@@ -48,6 +79,7 @@ import numpy as np
 import colour
 import skimage
 from skimage import data, exposure, filters
+from skimage.exposure._adapthist import clip_histogram  # its redistribution, measured below
 
 HERE = pathlib.Path(__file__).resolve().parent
 FIXTURES = HERE / "fixtures" / "tone"
@@ -212,6 +244,8 @@ def generate(folder):
                 "whitepoint_y": float(d65[1]),
             }
         )
+    cases.extend(point_and_colour_cases(folder))
+    cases.extend(clahe_cases(folder))
     manifest = {
         "colour_version": colour.__version__,
         "numpy_version": np.__version__,
@@ -220,6 +254,169 @@ def generate(folder):
     }
     (folder / "manifest.toml").write_text(to_toml(manifest))
     return manifest
+
+
+def srgb_decode(c):
+    """IEC 61966-2-1:1999 §5.2, in float64."""
+    return np.where(c <= 0.04045, c / 12.92, ((c + 0.055) / 1.055) ** 2.4)
+
+
+def planar(rgb):
+    """(h, w, 3) -> (3h, w): the planes stacked."""
+    return np.concatenate([rgb[..., c] for c in range(3)], axis=0)
+
+
+def point_and_colour_cases(folder):
+    cases = []
+    cam = data.camera()[200:248, 240:288]  # 48x48: coat, face and sky
+    save(folder, "point-camera.npy", cam.astype(np.float32))
+    x = cam.astype(np.float64) / 255.0
+    for low, high, gamma in [(0.2, 0.7, 1.0), (0.1, 0.6, 2.2)]:
+        out = np.clip((x - low) / (high - low), 0.0, 1.0) ** (1.0 / gamma)
+        cid = f"point-window-{low}-{high}-{gamma}"
+        save(folder, f"{cid}.npy", out.astype(np.float32))
+        cases.append(
+            {
+                "id": cid,
+                "reference": "numpy: clip((x - low)/(high - low), 0, 1) ** (1/gamma)",
+                "step": f"window:low={low},high={high},gamma={gamma}",
+                "input": "point-camera.npy",
+                "scale": 255.0,
+                "output": f"{cid}.npy",
+                "layout": "gray",
+                "window_low": low,
+                "window_high": high,
+                "gamma": gamma,
+            }
+        )
+    astro = data.astronaut()[150:182, 200:232]  # 32x32 RGB: the suit, the flag's colours
+    save(folder, "colour-astronaut.npy", planar(astro).astype(np.float32))
+    rgb = astro.astype(np.float64) / 255.0
+    lin = srgb_decode(rgb)
+    for stops in [1.0, -1.5]:
+        cid = f"point-exposure-{stops}"
+        save(folder, f"{cid}.npy", planar(lin * 2.0**stops).astype(np.float32))
+        cases.append(
+            {
+                "id": cid,
+                "reference": "numpy: IEC 61966-2-1 decode(x) * 2**stops (linear light)",
+                "step": f"exposure:{stops}",
+                "input": "colour-astronaut.npy",
+                "scale": 255.0,
+                "output": f"{cid}.npy",
+                "layout": "rgb",
+            }
+        )
+    lin32 = srgb_decode(rgb).astype(np.float32).astype(np.float64)
+    rect = (4, 6, 10, 8)  # x, y, width, height
+    rx, ry, rw, rh = rect
+    for method, step in [
+        ("gray-world", "balance:gray-world"),
+        ("white-patch", "balance:white-patch,percentile=99"),
+        ("rect", f"balance:rect,x={rx},y={ry},width={rw},height={rh}"),
+    ]:
+        case = {}
+        if method == "gray-world":
+            m = lin32.reshape(-1, 3).mean(axis=0)
+            gains = m.mean() / m
+        elif method == "rect":
+            m = lin32[ry : ry + rh, rx : rx + rw].reshape(-1, 3).mean(axis=0)
+            gains = m.mean() / m
+        else:
+            flat = lin32.reshape(-1, 3)
+            p = np.percentile(flat, 99, axis=0)
+            gains = p.max() / p
+            # Pumice reads percentiles from 65536 bins between each channel's
+            # minimum and maximum: each within one bin width of numpy's.
+            width = (flat.max(axis=0) - flat.min(axis=0)) / 65536.0
+            case["bin_share"] = float((width / p).max())
+        cid = f"balance-{method}"
+        save(folder, f"{cid}.npy", planar(lin32 * gains).astype(np.float32))
+        cases.append(
+            {
+                "id": cid,
+                "reference": f"numpy {method} gains on IEC 61966-2-1 decoded float32 samples",
+                "step": step,
+                "input": "colour-astronaut.npy",
+                "scale": 255.0,
+                "output": f"{cid}.npy",
+                "layout": "rgb",
+                **case,
+            }
+        )
+    srgb = colour.RGB_COLOURSPACES["sRGB"].copy()
+    srgb.use_derived_transformation_matrices(True)
+    rgb32 = rgb.astype(np.float32).astype(np.float64)
+    lab = colour.XYZ_to_Lab(colour.RGB_to_XYZ(rgb32, srgb, apply_cctf_decoding=True), srgb.whitepoint)
+    lch = colour.Lab_to_LCHab(lab)
+    hsv = colour.RGB_to_HSV(rgb32)
+    for cid, steps, values, ref in [
+        ("extract-lab-l", "space:lab extract:l", lab[..., 0], "colour.XYZ_to_Lab, L*"),
+        ("extract-lab-2", "space:lab extract:2", lab[..., 2], "colour.XYZ_to_Lab, b* (by index)"),
+        ("extract-lch-c", "space:lch extract:c", lch[..., 1], "colour.Lab_to_LCHab, C*ab"),
+        ("extract-hsv-s", "space:hsv extract:s", hsv[..., 1], "colour.RGB_to_HSV, S"),
+    ]:
+        save(folder, f"{cid}.npy", values.astype(np.float32))
+        cases.append(
+            {
+                "id": cid,
+                "reference": ref,
+                "step": steps,
+                "input": "colour-astronaut.npy",
+                "scale": 255.0,
+                "output": f"{cid}.npy",
+                "layout": "rgb",
+            }
+        )
+    return cases
+
+
+def clahe_cases(folder):
+    cases = []
+    for name, img in [("camera", data.camera()[100:164, 200:264]), ("moon", data.moon()[200:264, 200:264])]:
+        # Full range, so scikit-image's rescale of the input is 8 -> 14 bits only.
+        img = np.round(exposure.rescale_intensity(img, out_range=(0, 255))).astype(np.uint8)
+        save(folder, f"clahe-{name}.npy", img.astype(np.float32))
+        for tiles, clip in [(4, 0.0), (4, 0.03125)]:
+            kernel = img.shape[0] // tiles
+            out = exposure.equalize_adapthist(img, kernel_size=kernel, clip_limit=clip, nbins=256)
+            # Per tile, as shares of its pixels: the counts clipped above the limit
+            # (scikit-image's integer limit, equal to Pumice's here), the counts
+            # scikit-image's clip_histogram hands back (it adds +1 to every bin under
+            # the limit per round, so it can hand back more than it clipped), and
+            # the count of a code that shares scikit-image's bin with the code
+            # below it (that code's map then includes it; Pumice's does not).
+            limit = max(int(clip * kernel * kernel), 1) if clip > 0 else kernel * kernel
+            sk_bin = np.round(np.arange(256) * 257 * 16383 / 65535) // (1 + 16384 // 256)
+            merged = np.flatnonzero(sk_bin[1:] == sk_bin[:-1]) + 1
+            share = handed = merge = 0.0
+            for ty in range(tiles):
+                for tx in range(tiles):
+                    t = img[ty * kernel : (ty + 1) * kernel, tx * kernel : (tx + 1) * kernel]
+                    h = np.bincount(t.ravel(), minlength=256)
+                    share = max(share, float(np.maximum(h - limit, 0).sum()) / t.size)
+                    hb = np.bincount(sk_bin[t.ravel()].astype(np.int64), minlength=256)
+                    back = clip_histogram(hb.copy(), limit).sum() - np.minimum(hb, limit).sum()
+                    handed = max(handed, float(back) / t.size)
+                    merge = max(merge, float(h[merged].max()) / t.size)
+            cid = f"clahe-{name}-t{tiles}-c{clip}"
+            save(folder, f"{cid}.npy", out.astype(np.float32))
+            cases.append(
+                {
+                    "id": cid,
+                    "reference": f"skimage.exposure.equalize_adapthist(kernel_size={kernel}, clip_limit={clip}, nbins=256)",
+                    "step": f"clahe:tiles={tiles},clip={clip if clip > 0 else 1},bins=256",
+                    "input": f"clahe-{name}.npy",
+                    "scale": 255.0,
+                    "output": f"{cid}.npy",
+                    "layout": "gray",
+                    "excess_share": share,
+                    "handed_share": handed,
+                    "merge_share": merge,
+                    "tile_side": kernel,
+                }
+            )
+    return cases
 
 
 def toml_value(v):

@@ -398,7 +398,8 @@ fn extract_matches_colour_science_channels() {
 /// Without clipping only the first, second and last remain; with clipping the
 /// redistribution dominates (scikit-image hands back more than it clipped:
 /// 0.98 against 0.77 of a moon tile), and the printed worst and mean differences
-/// say how close the two are in practice.
+/// say how close the two are in practice. For the clipped moon case the bound
+/// exceeds the output range, so that case is compared but not checked.
 #[test]
 fn clahe_against_scikit_image_equalize_adapthist() {
     let m = manifest();
@@ -425,10 +426,15 @@ fn clahe_against_scikit_image_equalize_adapthist() {
             .sum::<f64>()
             / want[0].as_slice().len() as f64;
         eprintln!("{}: worst difference {d:.4} at ({x}, {y}), mean {mean:.4}, bound {bound:.4}", case.id);
+        // A bound of a whole output range or more cannot fail, so it is no check:
+        // such a case (heavy clipping on moon) is printed for comparison only.
+        if bound >= 1.0 {
+            continue;
+        }
         assert!(f64::from(d) <= bound, "{}: {d} > {bound} ({})", case.id, case.reference);
         n += 1;
     }
-    assert_eq!(n, 4);
+    assert_eq!(n, 3, "three of the four cases have a bound below the output range");
 }
 
 /// The bad input issue 5 lists, through the binary: each is one clear line

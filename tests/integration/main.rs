@@ -4,6 +4,7 @@
 mod harness;
 
 mod batch;
+mod canny;
 mod cli;
 mod cmyk;
 mod codecs;

@@ -17,6 +17,7 @@ mod hostile;
 mod measure;
 mod morph;
 mod orientation;
+mod properties;
 mod reference;
 mod resample;
 mod robustness;

@@ -194,8 +194,8 @@ fn suppress(gx: &Plane, gy: &Plane, mag: &Plane) -> Plane {
             let (rx, ry) = (gx.row(y), gy.row(y));
             for x in 1..w - 1 {
                 let m = mid[x];
-                // NaN fails this test too.
-                if !(m > 0.0) {
+                // NaN is not greater than 0 either, so it never survives.
+                if m.partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater) {
                     continue;
                 }
                 let (dx, dy) = (rx[x], ry[x]);

@@ -138,16 +138,11 @@ impl Canny {
             smoothed = correlate_separable(p, &self.kernel, &self.kernel, self.border);
             &smoothed
         };
-        let (gx, gy) = rayon::join(
-            || correlate_separable(s, &DERIVATIVE, &SOBEL_SMOOTH, self.border),
-            || correlate_separable(s, &SOBEL_SMOOTH, &DERIVATIVE, self.border),
-        );
-        let mag = magnitude(&gx, &gy);
-        let thin = suppress(&gx, &gy, &mag);
+        let thin = suppress(s, self.border);
         let found = match self.thresholds {
             Thresholds::Magnitude { low, high } => Found { low, high },
             Thresholds::Quantile { low, high } => {
-                let (low, high) = quantiles(mag.as_slice(), low, high);
+                let (low, high) = quantiles(magnitude(s, self.border).as_slice(), low, high);
                 Found { low, high }
             }
             Thresholds::Auto => {
@@ -161,76 +156,152 @@ impl Canny {
     }
 }
 
-/// `√(gx² + gy²)` by bands.
-fn magnitude(gx: &Plane, gy: &Plane) -> Plane {
-    let w = gx.width();
-    let mut out = Plane::zeros(w, gx.height()).unwrap_or_else(|_| unreachable!("same size as a valid plane"));
-    tile::for_each_band(&mut out, tile::band_rows(w, 0), |y0, band| {
-        let r = y0 * w..y0 * w + band.len();
-        for ((o, &x), &y) in band.iter_mut().zip(&gx.as_slice()[r.clone()]).zip(&gy.as_slice()[r]) {
-            *o = (x * x + y * y).sqrt();
+/// One row of the Sobel gradient of `s` and its magnitude, the same sums in
+/// the same order as `correlate_separable` with the Sobel kernels (so the
+/// results are bit-identical): the vertical passes `v = 2·b + (a + c)` and
+/// `d = −a + 0·b + c` over rows y − 1, y, y + 1, padded by one sample under
+/// `border`, then `gx = −v[x−1] + 0·v[x] + v[x+1]`, `gy = 2·d[x] + (d[x−1] + d[x+1])`.
+struct GradientRows<'a> {
+    s: &'a Plane,
+    border: Border,
+    const_row: Vec<f32>,
+    v: Vec<f32>,
+    d: Vec<f32>,
+    v_pad: Vec<f32>,
+    d_pad: Vec<f32>,
+}
+
+impl<'a> GradientRows<'a> {
+    fn new(s: &'a Plane, border: Border) -> GradientRows<'a> {
+        let w = s.width();
+        GradientRows {
+            s,
+            border,
+            const_row: vec![border.constant_value(); w],
+            v: vec![0.0; w],
+            d: vec![0.0; w],
+            v_pad: vec![0.0; w + 2],
+            d_pad: vec![0.0; w + 2],
+        }
+    }
+
+    /// Writes row `y`'s gx, gy and magnitude.
+    fn row(&mut self, y: usize, gx: &mut [f32], gy: &mut [f32], mag: &mut [f32]) {
+        let y = y as isize;
+        let get = |dy: isize| tile::source_row(self.s, y + dy, self.border).unwrap_or(&self.const_row);
+        let (a, b, c) = (get(-1), get(0), get(1));
+        for (((v, d), (&a, &b)), &c) in self.v.iter_mut().zip(self.d.iter_mut()).zip(a.iter().zip(b)).zip(c) {
+            *v = 2.0 * b + (a + c);
+            *d = -a + 0.0 * b + c;
+        }
+        // The horizontal halo under a constant rule is the fill times the
+        // vertical taps' sum: 4 for the smoothing taps, 0 for the derivative.
+        let (vb, db) = match self.border {
+            Border::Constant(f) => (Border::Constant(f * 4.0), Border::Constant(f * 0.0)),
+            b => (b, b),
+        };
+        tile::pad_row(&self.v, 1, vb, &mut self.v_pad);
+        tile::pad_row(&self.d, 1, db, &mut self.d_pad);
+        let (vp, dp) = (&self.v_pad, &self.d_pad);
+        for (x, ((gx, gy), m)) in gx.iter_mut().zip(gy.iter_mut()).zip(mag.iter_mut()).enumerate() {
+            let h = -vp[x] + 0.0 * vp[x + 1] + vp[x + 2];
+            let v = 2.0 * dp[x + 1] + (dp[x] + dp[x + 2]);
+            *gx = h;
+            *gy = v;
+            *m = (h * h + v * v).sqrt();
+        }
+    }
+}
+
+/// The Sobel gradient magnitude `√(gx² + gy²)` of `s`, by bands.
+fn magnitude(s: &Plane, border: Border) -> Plane {
+    let w = s.width();
+    let mut out = Plane::zeros(w, s.height()).unwrap_or_else(|_| unreachable!("same size as a valid plane"));
+    tile::for_each_band(&mut out, tile::band_rows(w, 1), |y0, band| {
+        let mut rows = GradientRows::new(s, border);
+        let (mut gx, mut gy) = (vec![0.0; w], vec![0.0; w]);
+        for (i, m) in band.chunks_exact_mut(w).enumerate() {
+            rows.row(y0 + i, &mut gx, &mut gy, m);
         }
     });
     out
 }
 
-/// Non-maximum suppression: the magnitude where it is a local maximum along
-/// the gradient direction (neighbours interpolated, see the operator doc), 0
-/// elsewhere and on the outermost rows and columns. Runs by bands; each output
-/// row reads three magnitude rows.
-fn suppress(gx: &Plane, gy: &Plane, mag: &Plane) -> Plane {
-    let (w, h) = (mag.width(), mag.height());
+/// Non-maximum suppression of the Sobel gradient of `s`: the magnitude where
+/// it is a local maximum along the gradient direction (neighbours
+/// interpolated, see the operator doc), 0 elsewhere and on the outermost rows
+/// and columns. Runs by bands; each band computes its gradient rows (and one
+/// row above and below) into a ring of three, so no gradient plane is stored.
+fn suppress(s: &Plane, border: Border) -> Plane {
+    let (w, h) = (s.width(), s.height());
     let mut out = Plane::zeros(w, h).unwrap_or_else(|_| unreachable!("same size as a valid plane"));
     if w < 3 || h < 3 {
         return out;
     }
     tile::for_each_band(&mut out, tile::band_rows(w, 1), |y0, band| {
+        let mut rows = GradientRows::new(s, border);
+        // ring[k] holds row y with y % 3 == k: gx, gy, magnitude
+        let mut ring: [[Vec<f32>; 3]; 3] = std::array::from_fn(|_| std::array::from_fn(|_| vec![0.0; w]));
+        let mut fill = |y: usize, ring: &mut [[Vec<f32>; 3]; 3]| {
+            let [gx, gy, m] = &mut ring[y % 3];
+            rows.row(y, gx, gy, m);
+        };
+        let band_end = y0 + band.len() / w;
+        let first = y0.max(1);
+        if first < band_end && first < h - 1 {
+            fill(first - 1, &mut ring);
+            fill(first, &mut ring);
+        }
         for (i, out_row) in band.chunks_exact_mut(w).enumerate() {
             let y = y0 + i;
             if y == 0 || y == h - 1 {
                 continue;
             }
-            let (up, mid, down) = (mag.row(y - 1), mag.row(y), mag.row(y + 1));
-            let (rx, ry) = (gx.row(y), gy.row(y));
-            for x in 1..w - 1 {
-                let m = mid[x];
-                // NaN is not greater than 0 either, so it never survives.
-                if m.partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater) {
-                    continue;
-                }
-                let (dx, dy) = (rx[x], ry[x]);
-                // The neighbour ahead along (dx, dy), one step on the major
-                // axis; the opposite one mirrors it. Zero components point
-                // forwards: then the weight w is 0 and the diagonal unused.
-                let sx: isize = if dx < 0.0 { -1 } else { 1 };
-                let sy: isize = if dy < 0.0 { -1 } else { 1 };
-                let (ax, ay) = (dx.abs(), dy.abs());
-                let row = |d: isize| {
-                    if d < 0 {
-                        up
-                    } else if d > 0 {
-                        down
-                    } else {
-                        mid
-                    }
-                };
-                let col = |d: isize| (x as isize + d) as usize;
-                let (wt, ahead_axis, behind_axis) = if ay > ax {
-                    (ax / ay, row(sy)[x], row(-sy)[x])
-                } else {
-                    (ay / ax, mid[col(sx)], mid[col(-sx)])
-                };
-                let ahead_diag = row(sy)[col(sx)];
-                let behind_diag = row(-sy)[col(-sx)];
-                if interpolate(wt, ahead_diag, ahead_axis) <= f64::from(m)
-                    && interpolate(wt, behind_diag, behind_axis) <= f64::from(m)
-                {
-                    out_row[x] = m;
-                }
-            }
+            fill(y + 1, &mut ring);
+            let [rx, ry, mid] = &ring[y % 3];
+            let (up, down) = (&ring[(y - 1) % 3][2], &ring[(y + 1) % 3][2]);
+            thin_row(rx, ry, up, mid, down, out_row);
         }
     });
     out
+}
+
+/// Thins one interior row: `out[x] = mid[x]` where it survives (1 ≤ x < w − 1).
+fn thin_row(rx: &[f32], ry: &[f32], up: &[f32], mid: &[f32], down: &[f32], out: &mut [f32]) {
+    let w = mid.len();
+    for x in 1..w - 1 {
+        let m = mid[x];
+        // NaN is not greater than 0 either, so it never survives.
+        if m.partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater) {
+            continue;
+        }
+        let (dx, dy) = (rx[x], ry[x]);
+        // The neighbour ahead along (dx, dy), one step on the major axis; the
+        // opposite one mirrors it. Zero components point forwards: then the
+        // weight w is 0 and the diagonal unused.
+        let sx: isize = if dx < 0.0 { -1 } else { 1 };
+        let sy: isize = if dy < 0.0 { -1 } else { 1 };
+        let (ax, ay) = (dx.abs(), dy.abs());
+        let row = |d: isize| {
+            if d < 0 {
+                up
+            } else if d > 0 {
+                down
+            } else {
+                mid
+            }
+        };
+        let col = |d: isize| (x as isize + d) as usize;
+        let (wt, ahead_axis, behind_axis) =
+            if ay > ax { (ax / ay, row(sy)[x], row(-sy)[x]) } else { (ay / ax, mid[col(sx)], mid[col(-sx)]) };
+        let ahead_diag = row(sy)[col(sx)];
+        let behind_diag = row(-sy)[col(-sx)];
+        if interpolate(wt, ahead_diag, ahead_axis) <= f64::from(m)
+            && interpolate(wt, behind_diag, behind_axis) <= f64::from(m)
+        {
+            out[x] = m;
+        }
+    }
 }
 
 /// `w·diag + (1 − w)·axis`, the weight product in f32 and the rest in f64.
@@ -454,8 +525,8 @@ mod tests {
         let s = correlate_separable(&p, &gaussian_kernel(0.8, 3), &gaussian_kernel(0.8, 3), Border::Reflect);
         let gx = correlate_separable(&s, &DERIVATIVE, &SOBEL_SMOOTH, Border::Reflect);
         let gy = correlate_separable(&s, &SOBEL_SMOOTH, &DERIVATIVE, Border::Reflect);
-        let mag = magnitude(&gx, &gy);
-        let thin = suppress(&gx, &gy, &mag);
+        let mag = magnitude(&s, Border::Reflect);
+        let thin = suppress(&s, Border::Reflect);
         let m = |x: f64, y: f64| {
             // bilinear interpolation of the magnitude (f64)
             let (x0, y0) = (x.floor(), y.floor());
@@ -491,6 +562,29 @@ mod tests {
         }
         assert!(decided > 300 && kept > 30, "{decided} decided, {kept} kept");
         assert!((0..23).all(|x| thin.get(x, 0) == 0.0 && thin.get(x, 18) == 0.0));
+    }
+
+    #[test]
+    fn fused_gradient_rows_equal_the_separable_engine_bit_for_bit() {
+        let borders =
+            [Border::Reflect, Border::Mirror, Border::Replicate, Border::Wrap, Border::Constant(0.3)];
+        for (w, h) in [(1, 1), (1, 6), (6, 1), (2, 2), (13, 9)] {
+            let p = noise(w, h, 17);
+            for b in borders {
+                let gx = correlate_separable(&p, &DERIVATIVE, &SOBEL_SMOOTH, b);
+                let gy = correlate_separable(&p, &SOBEL_SMOOTH, &DERIVATIVE, b);
+                let mut rows = GradientRows::new(&p, b);
+                let (mut rx, mut ry, mut rm) = (vec![0.0; w], vec![0.0; w], vec![0.0; w]);
+                for y in 0..h {
+                    rows.row(y, &mut rx, &mut ry, &mut rm);
+                    assert_eq!(rx, gx.row(y), "{b:?} {w}×{h} gx row {y}");
+                    assert_eq!(ry, gy.row(y), "{b:?} {w}×{h} gy row {y}");
+                    let want: Vec<f32> = rx.iter().zip(&ry).map(|(x, y)| (x * x + y * y).sqrt()).collect();
+                    assert_eq!(rm, want);
+                }
+                assert_eq!(magnitude(&p, b).row(h - 1), &rm[..]);
+            }
+        }
     }
 
     #[test]

@@ -3,7 +3,7 @@
 //! smoothing and the gradient are run by the filter engines; this module owns
 //! the thinning, the threshold choice and the linking flood.
 
-use super::{DERIVATIVE, ON_NAMES, SOBEL_SMOOTH, edge_planes};
+use super::{ON_NAMES, edge_planes};
 use crate::error::{Error, ParamError};
 use crate::ops::filter::{correlate_separable, gaussian_kernel};
 use crate::ops::params::{self, Kind, OpSpec, ParamSpec};
@@ -138,18 +138,21 @@ impl Canny {
             smoothed = correlate_separable(p, &self.kernel, &self.kernel, self.border);
             &smoothed
         };
-        let thin = suppress(s, self.border);
-        let found = match self.thresholds {
-            Thresholds::Magnitude { low, high } => Found { low, high },
+        // Samples below the low threshold can never be edges, so the thinning
+        // skips them when low is known beforehand; the automatic choice needs
+        // every survivor.
+        let (thin, found) = match self.thresholds {
+            Thresholds::Magnitude { low, high } => (suppress(s, self.border, low), Found { low, high }),
             Thresholds::Quantile { low, high } => {
                 let (low, high) = quantiles(magnitude(s, self.border).as_slice(), low, high);
-                Found { low, high }
+                (suppress(s, self.border, low), Found { low, high })
             }
             Thresholds::Auto => {
+                let thin = suppress(s, self.border, 0.0);
                 let alive: Vec<f32> = thin.as_slice().iter().copied().filter(|&v| v > 0.0).collect();
                 // No survivor: no threshold, and no edges.
                 let high = otsu_threshold(&alive, None, 256).map_or(f32::INFINITY, |t| t as f32);
-                Found { low: high / 2.0, high }
+                (thin, Found { low: high / 2.0, high })
             }
         };
         (hysteresis(&thin, found.low, found.high), found)
@@ -230,9 +233,10 @@ fn magnitude(s: &Plane, border: Border) -> Plane {
 /// Non-maximum suppression of the Sobel gradient of `s`: the magnitude where
 /// it is a local maximum along the gradient direction (neighbours
 /// interpolated, see the operator doc), 0 elsewhere and on the outermost rows
-/// and columns. Runs by bands; each band computes its gradient rows (and one
-/// row above and below) into a ring of three, so no gradient plane is stored.
-fn suppress(s: &Plane, border: Border) -> Plane {
+/// and columns, and below `low` (those never become edges). Runs by bands;
+/// each band computes its gradient rows (and one row above and below) into a
+/// ring of three, so no gradient plane is stored.
+fn suppress(s: &Plane, border: Border, low: f32) -> Plane {
     let (w, h) = (s.width(), s.height());
     let mut out = Plane::zeros(w, h).unwrap_or_else(|_| unreachable!("same size as a valid plane"));
     if w < 3 || h < 3 {
@@ -260,19 +264,19 @@ fn suppress(s: &Plane, border: Border) -> Plane {
             fill(y + 1, &mut ring);
             let [rx, ry, mid] = &ring[y % 3];
             let (up, down) = (&ring[(y - 1) % 3][2], &ring[(y + 1) % 3][2]);
-            thin_row(rx, ry, up, mid, down, out_row);
+            thin_row(rx, ry, up, mid, down, low, out_row);
         }
     });
     out
 }
 
-/// Thins one interior row: `out[x] = mid[x]` where it survives (1 ≤ x < w − 1).
-fn thin_row(rx: &[f32], ry: &[f32], up: &[f32], mid: &[f32], down: &[f32], out: &mut [f32]) {
+/// Thins one interior row: `out[x] = mid[x]` where it survives and is at least
+/// `low` (1 ≤ x < w − 1).
+fn thin_row(rx: &[f32], ry: &[f32], up: &[f32], mid: &[f32], down: &[f32], low: f32, out: &mut [f32]) {
     let w = mid.len();
     for x in 1..w - 1 {
         let m = mid[x];
-        // NaN is not greater than 0 either, so it never survives.
-        if m.partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater) {
+        if m.is_nan() || m <= 0.0 || m < low {
             continue;
         }
         let (dx, dy) = (rx[x], ry[x]);
@@ -458,6 +462,7 @@ mod tests {
     //! (refused), a plateau of equal magnitudes across a symmetric step (both
     //! columns survive: the comparison is ≤). Reference for the thinning: a
     //! naive bilinear sample of the magnitude one step along the gradient.
+    use super::super::{DERIVATIVE, SOBEL_SMOOTH};
     use super::*;
     use crate::raster::{Encoding, Layout};
 
@@ -526,7 +531,7 @@ mod tests {
         let gx = correlate_separable(&s, &DERIVATIVE, &SOBEL_SMOOTH, Border::Reflect);
         let gy = correlate_separable(&s, &SOBEL_SMOOTH, &DERIVATIVE, Border::Reflect);
         let mag = magnitude(&s, Border::Reflect);
-        let thin = suppress(&s, Border::Reflect);
+        let thin = suppress(&s, Border::Reflect, 0.0);
         let m = |x: f64, y: f64| {
             // bilinear interpolation of the magnitude (f64)
             let (x0, y0) = (x.floor(), y.floor());
@@ -561,6 +566,12 @@ mod tests {
             }
         }
         assert!(decided > 300 && kept > 30, "{decided} decided, {kept} kept");
+        // Skipping samples below low drops exactly the survivors below low.
+        let low = 0.8;
+        let skipped = suppress(&s, Border::Reflect, low);
+        let dropped: Vec<f32> = thin.as_slice().iter().map(|&v| if v < low { 0.0 } else { v }).collect();
+        assert_eq!(skipped.as_slice(), &dropped[..]);
+        assert!(dropped.iter().any(|&v| v > 0.0) && dropped.iter().any(|&v| v == 0.0));
         assert!((0..23).all(|x| thin.get(x, 0) == 0.0 && thin.get(x, 18) == 0.0));
     }
 

@@ -155,7 +155,7 @@ impl Canny {
                 (thin, Found { low: high / 2.0, high })
             }
         };
-        (hysteresis(&thin, found.low, found.high), found)
+        (hysteresis(thin, found.low, found.high), found)
     }
 }
 
@@ -328,32 +328,36 @@ fn quantiles(samples: &[f32], a: f64, b: f64) -> (f32, f32) {
     (at(a), at(b))
 }
 
-/// Marks the survivors of `thin` at or above `high`, then floods from them
-/// through 8-connected survivors at or above `low` (an explicit stack).
-fn hysteresis(thin: &Plane, low: f32, high: f32) -> Plane {
-    let (w, h) = (thin.width(), thin.height());
-    let t = thin.as_slice();
-    let weak = |i: usize| t[i] > 0.0 && t[i] >= low;
-    let mut out = Plane::zeros(w, h).unwrap_or_else(|_| unreachable!("same size as a valid plane"));
-    let o = out.as_mut_slice();
+/// Keeps the survivors of `thin` at or above `high` and those joined to them
+/// through 8-connected survivors at or above `low` (a flood with an explicit
+/// stack), and turns `thin` into the 0/1 map in place: kept samples are marked
+/// −1 while flooding (so they are no longer candidates), then every sample is
+/// mapped to 1 where marked and 0 elsewhere, by bands.
+fn hysteresis(mut thin: Plane, low: f32, high: f32) -> Plane {
+    let w = thin.width();
+    let t = thin.as_mut_slice();
+    let candidate = |v: f32| v > 0.0 && v >= low;
     let mut stack = Vec::new();
     for seed in 0..t.len() {
-        if o[seed] != 0.0 || !(weak(seed) && t[seed] >= high) {
+        if !(candidate(t[seed]) && t[seed] >= high) {
             continue;
         }
-        o[seed] = 1.0;
+        t[seed] = -1.0;
         stack.push(seed);
         while let Some(i) = stack.pop() {
             // Survivors are never on the outermost ring, so all 8 neighbours exist.
             for j in [i - w - 1, i - w, i - w + 1, i - 1, i + 1, i + w - 1, i + w, i + w + 1] {
-                if o[j] == 0.0 && weak(j) {
-                    o[j] = 1.0;
+                if candidate(t[j]) {
+                    t[j] = -1.0;
                     stack.push(j);
                 }
             }
         }
     }
-    out
+    tile::for_each_band(&mut thin, tile::band_rows(w, 0), |_, band| {
+        band.iter_mut().for_each(|v| *v = if *v < 0.0 { 1.0 } else { 0.0 });
+    });
+    thin
 }
 
 impl Operator for Canny {
@@ -571,7 +575,7 @@ mod tests {
         let skipped = suppress(&s, Border::Reflect, low);
         let dropped: Vec<f32> = thin.as_slice().iter().map(|&v| if v < low { 0.0 } else { v }).collect();
         assert_eq!(skipped.as_slice(), &dropped[..]);
-        assert!(dropped.iter().any(|&v| v > 0.0) && dropped.iter().any(|&v| v == 0.0));
+        assert!(dropped.iter().any(|&v| v > 0.0) && dropped.contains(&0.0));
         assert!((0..23).all(|x| thin.get(x, 0) == 0.0 && thin.get(x, 18) == 0.0));
     }
 
@@ -609,15 +613,15 @@ mod tests {
             0.0, 0.0, 0.0, 0.0, 0.3, 0.0, 0.0,
             0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0,
         ]).unwrap();
-        let e = hysteresis(&t, 0.2, 0.5);
+        let e = hysteresis(t.clone(), 0.2, 0.5);
         // The strong 0.9 links the 0.3s at (2, 2) and (2, 3) (diagonal, then
         // straight); (4, 4) touches only the 0.1 at (3, 3), below low, so it
         // stays out until low drops under 0.1.
         assert_eq!(ones(&e), vec![(1, 1), (2, 2), (2, 3)]);
-        let e = hysteresis(&t, 0.05, 0.5);
+        let e = hysteresis(t.clone(), 0.05, 0.5);
         assert_eq!(ones(&e), vec![(1, 1), (2, 2), (2, 3), (3, 3), (4, 4)]);
         // The pair at (5, 1)-(5, 2) joins only once 0.3 counts as strong.
-        let e = hysteresis(&t, 0.2, 0.25);
+        let e = hysteresis(t, 0.2, 0.25);
         assert_eq!(ones(&e).len(), 6);
     }
 

@@ -8,7 +8,9 @@
 //!
 //! Workloads: gauss σ = 2, 8, 32 (method=auto) and exact beside fast at
 //! σ = 4, 6, 8 (the measurement behind `FAST_SIGMA`), box r=5 on RGB f32 (linear); median 5×5 on the 8-bit RGB image;
-//! median r=15 (31×31) on a 16-bit gray image; Sobel magnitude on gray f32.
+//! median r=15 (31×31) on a 16-bit gray image; Sobel magnitude on gray f32;
+//! canny σ=1 (thresholds 0.1 / 0.2) on gray f32 taken as encoded values (its
+//! domain, so no conversion is timed).
 
 #[path = "common.rs"]
 mod common;
@@ -55,10 +57,11 @@ fn main() {
         (base + tex).round() / 65535.0
     })
     .unwrap();
+    let gray_encoded = Raster::new(vec![gray_plane.clone()], Layout::Gray, Encoding::Srgb).unwrap();
     let mut gray16 = Raster::new(vec![g16.clone()], Layout::Gray, Encoding::Linear).unwrap();
     gray16.levels = Some(65535);
 
-    let workloads: [(&str, &str, &Raster); 13] = [
+    let workloads: [(&str, &str, &Raster); 14] = [
         ("gauss-2", "gauss:2", &linear),
         ("gauss-8", "gauss:8", &linear),
         ("gauss-32", "gauss:32", &linear),
@@ -73,6 +76,7 @@ fn main() {
         ("median-5x5", "median:2", &image),
         ("median-r15-16bit", "median:15", &gray16),
         ("sobel-magnitude", "sobel:magnitude", &gray),
+        ("canny-1", "canny:sigma=1,low=0.1,high=0.2", &gray_encoded),
     ];
     let mut ours: Vec<(&str, f64)> = Vec::new();
     for (name, step, input) in workloads {
@@ -99,8 +103,10 @@ fn main() {
     let g16_bytes: Vec<u8> =
         g16.as_slice().iter().flat_map(|v| ((v * 65535.0).round() as u16).to_le_bytes()).collect();
     write_npy(&dir.join("gray16.npy"), "<u2", &[H, W], &g16_bytes);
+    let gray8: Vec<u8> = gray_plane.as_slice().iter().map(|v| (v * 255.0).round() as u8).collect();
+    write_npy(&dir.join("gray8.npy"), "|u1", &[H, W], &gray8);
 
     let reference = common::reference_times("reference_filters.py", &[&dir]);
-    print_table(mpix, &ours, &reference, &["cv2", "scipy"]);
+    print_table(mpix, &ours, &reference, &["cv2", "cv2u8", "scipy", "skimage"]);
     println!("(ratio = reference time / Pumice time: above 1 means Pumice is faster)");
 }

@@ -3,7 +3,7 @@
 
 Called by the benchmark with the .npy files it wrote (rgb.npy: 3 x H x W float32
 linear planes; rgb8.npy: H x W x 3 uint8; gray.npy: H x W float32; gray16.npy:
-H x W uint16), so both sides measure the same data in the same run. Prints one
+H x W uint16; gray8.npy: H x W uint8, the gray plane in 8-bit codes), so both sides measure the same data in the same run. Prints one
 JSON object: "lib.workload" -> median seconds for the whole image.
 
   gauss-2, -8, -32   cv2.GaussianBlur(plane, (2r+1, 2r+1), sigma, BORDER_REFLECT) per
@@ -21,6 +21,13 @@ JSON object: "lib.workload" -> median seconds for the whole image.
   sobel-magnitude    cv2.Sobel(gray, CV_32F, 1, 0) and (0, 1) (ksize 3,
                      BORDER_REFLECT) + cv2.magnitude; scipy.ndimage.sobel on both
                      axes + numpy.hypot.
+  canny-1            skimage.feature.canny(gray, sigma=1, low_threshold=0.1,
+                     high_threshold=0.2, mode='reflect') on float32 (the same
+                     algorithm, single-threaded); cv2.GaussianBlur(gray8, (9, 9), 1,
+                     BORDER_REFLECT) + cv2.Canny(.., 25.5, 51, L2gradient=True) on
+                     the 8-bit codes (OpenCV's Canny takes only u8; thresholds
+                     scaled by 255; it thins without interpolation); its row is
+                     labelled cv2u8.
 OpenCV runs with 2 threads (cv2.setNumThreads(2)); scipy is single-threaded.
 """
 import argparse
@@ -43,6 +50,7 @@ def main():
     rgb8 = np.load(f"{args.folder}/rgb8.npy")
     gray = np.load(f"{args.folder}/gray.npy")
     gray16 = np.load(f"{args.folder}/gray16.npy")
+    gray8 = np.load(f"{args.folder}/gray8.npy")
     h, w = gray.shape
     out = {}
     try:
@@ -66,6 +74,12 @@ def main():
             return cv2.magnitude(gx, gy)
 
         out["cv2.sobel-magnitude"] = median_time(cv_sobel, args.repeats)
+
+        def cv_canny():
+            smooth = cv2.GaussianBlur(gray8, (9, 9), 1.0, borderType=cv2.BORDER_REFLECT)
+            return cv2.Canny(smooth, 25.5, 51.0, L2gradient=True)
+
+        out["cv2u8.canny-1"] = median_time(cv_canny, args.repeats)
     except ImportError as e:
         print(f"opencv not timed: {e}", file=sys.stderr)
     try:
@@ -94,6 +108,15 @@ def main():
         )
     except ImportError as e:
         print(f"scipy not timed: {e}", file=sys.stderr)
+    try:
+        import skimage.feature
+
+        out["skimage.canny-1"] = median_time(
+            lambda: skimage.feature.canny(gray, sigma=1.0, low_threshold=0.1, high_threshold=0.2, mode="reflect"),
+            3,
+        )
+    except ImportError as e:
+        print(f"scikit-image not timed: {e}", file=sys.stderr)
     print(json.dumps(out))
 
 

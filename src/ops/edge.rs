@@ -1,7 +1,8 @@
 //! Edge operators: `sobel`, `scharr` (first derivatives) and `laplace` (second
 //! derivatives, optionally of a Gaussian). They are correlations run by the
 //! filter engines; this module chooses the kernels, reduces colour to luma and
-//! combines the derivative planes. It does not threshold or thin edges.
+//! combines the derivative planes. Thinning and thresholding edges is `canny`'s
+//! (in `edge/canny.rs`).
 
 use crate::color::luma;
 use crate::error::{Error, ParamError};
@@ -10,6 +11,10 @@ use crate::ops::params::{self, Kind, OpSpec, ParamSpec};
 use crate::ops::{Domain, Operator};
 use crate::raster::{Layout, Plane, Raster};
 use crate::tile::Border;
+
+mod canny;
+
+pub use canny::{CANNY, Canny, Found, Thresholds};
 
 /// What a gradient operator writes.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]

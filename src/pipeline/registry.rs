@@ -15,6 +15,7 @@ pub static OPERATORS: &[&OpSpec] = &[
     &edge::SOBEL,
     &edge::SCHARR,
     &edge::LAPLACE,
+    &edge::CANNY,
     &geometry::RESIZE,
     &geometry::CROP,
     &geometry::PAD,

@@ -4,6 +4,7 @@
 mod harness;
 
 mod batch;
+mod canny;
 mod cli;
 mod cmyk;
 mod codecs;
@@ -16,6 +17,7 @@ mod hostile;
 mod measure;
 mod morph;
 mod orientation;
+mod properties;
 mod reference;
 mod resample;
 mod robustness;

@@ -45,9 +45,9 @@ Source: the standard CCD calibration, e.g. Howell, Handbook of CCD Astronomy
 
 /// A calibration frame: its planes, as read, and the file it came from.
 #[derive(Debug)]
-struct Frame {
-    path: String,
-    planes: Vec<Plane>,
+pub(super) struct Frame {
+    pub(super) path: String,
+    pub(super) planes: Vec<Plane>,
 }
 
 #[doc = flatfield_doc!()]
@@ -105,7 +105,7 @@ impl Flatfield {
 }
 
 /// Reads one frame: bounded read, decode with the default limits, colour planes kept.
-fn read_frame(path: &Path, srgb: bool) -> Result<Frame, ParamError> {
+pub(super) fn read_frame(path: &Path, srgb: bool) -> Result<Frame, ParamError> {
     let name = path.display().to_string();
     let fail = |why: String| ParamError::new(format!("cannot read frame {name}: {why}"));
     let limits = io::Limits::DEFAULT;

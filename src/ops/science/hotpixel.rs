@@ -42,6 +42,11 @@ small difference an outlier (the zeros still pull this σ down: in a mostly flat
 image, raise k if texture gets touched); if it is 0 too, only NaN samples are
 repaired.
 The default k = 5 is common practice, no published source.
+With `dark=FILE` (a master dark frame, read once when the step is built, as
+`flatfield` reads its frames: linear values, same size and colour channels as
+the image), the pixels that stand out in the dark by the same rule — hot
+pixels, whose dark current shows with no light — are repaired too, however
+little they stand out in the image itself.
 Reports `repaired samples` (summed over the colour planes; `pumice run -v`).
 Border: mirror (the edge sample is not repeated, so a pixel never counts as its
 own neighbour); needs 1 row of halo. Alpha is left as it is.
@@ -55,6 +60,8 @@ microscopy; the robust threshold follows Rousseeuw & Croux (1993)."
 #[derive(Debug)]
 pub struct Hotpixel {
     k: f64,
+    /// The pixels a master dark marks, per colour plane, and the dark's file.
+    marked: Option<(String, Vec<Vec<bool>>)>,
 }
 
 impl Hotpixel {
@@ -62,7 +69,14 @@ impl Hotpixel {
         if !(k.is_finite() && k > 0.0) {
             return Err(ParamError::new(format!("k must be a positive number, got {k}")));
         }
-        Ok(Hotpixel { k })
+        Ok(Hotpixel { k, marked: None })
+    }
+
+    /// Also repairs the pixels that stand out in `dark` (its colour planes) by
+    /// the same rule; `name` names the frame in errors.
+    pub fn with_dark(self, name: String, dark: Vec<Plane>) -> Hotpixel {
+        let marked = dark.iter().map(|p| outliers(p, self.k).1).collect();
+        Hotpixel { marked: Some((name, marked)), ..self }
     }
 }
 
@@ -72,9 +86,21 @@ impl Operator for Hotpixel {
     }
 
     fn apply(&self, mut raster: Raster) -> Result<Raster, Error> {
+        if let Some((name, marked)) = &self.marked {
+            let (w, h, c) = (raster.width(), raster.height(), raster.layout().colour_channels());
+            if marked.len() != c || marked.iter().any(|m| m.len() != w * h) {
+                return Err(Error::Step {
+                    step: "hotpixel".into(),
+                    message: format!(
+                        "dark frame {name} does not match the {w}×{h} image with {c} colour channel(s)"
+                    ),
+                });
+            }
+        }
         let mut repaired = 0usize;
-        for p in raster.colour_planes_mut() {
-            repaired += repair_plane(p, self.k);
+        for (i, p) in raster.colour_planes_mut().iter_mut().enumerate() {
+            let marked = self.marked.as_ref().map(|(_, m)| m[i].as_slice());
+            repaired += repair_plane(p, self.k, marked);
         }
         raster.metadata.notes.push(Note {
             operator: "hotpixel",
@@ -85,15 +111,24 @@ impl Operator for Hotpixel {
     }
 }
 
-/// Repairs `p` in place and returns how many samples it replaced.
-pub fn repair_plane(p: &mut Plane, k: f64) -> usize {
+/// The neighbour median of `p` and which samples stand out from it: NaN, or
+/// `|in − median| > k·σ`.
+fn outliers(p: &Plane, k: f64) -> (Plane, Vec<bool>) {
     let median = neighbour_median(p);
     let diff: Vec<f32> = p.as_slice().iter().zip(median.as_slice()).map(|(&v, &m)| v - m).collect();
-    let sigma = robust_sigma(&diff);
-    let limit = k * sigma;
+    let limit = k * robust_sigma(&diff);
+    let out =
+        p.as_slice().iter().zip(&diff).map(|(v, &d)| v.is_nan() || f64::from(d.abs()) > limit).collect();
+    (median, out)
+}
+
+/// Repairs `p` in place — the samples that stand out, and those `marked` (by a
+/// master dark) — and returns how many it replaced.
+pub fn repair_plane(p: &mut Plane, k: f64, marked: Option<&[bool]>) -> usize {
+    let (median, stand_out) = outliers(p, k);
     let mut count = 0;
-    for ((v, &m), &d) in p.as_mut_slice().iter_mut().zip(median.as_slice()).zip(&diff) {
-        if v.is_nan() || f64::from(d.abs()) > limit {
+    for (i, (v, &m)) in p.as_mut_slice().iter_mut().zip(median.as_slice()).enumerate() {
+        if stand_out[i] || marked.is_some_and(|d| d[i]) {
             *v = m;
             count += 1;
         }
@@ -197,13 +232,30 @@ pub static HOTPIXEL: OpSpec = OpSpec {
     summary: "repair outlier pixels by their neighbourhood median (counts them)",
     doc: hotpixel_doc!(),
     main: Some("k"),
-    params: &[ParamSpec {
-        name: "k",
-        kind: Kind::positive(0.0, 1000.0),
-        default: Some("5"),
-        help: "threshold in robust standard deviations (1.4826 × MAD) of the difference from the median",
-    }],
-    build: |a| Ok(Box::new(Hotpixel::new(a.number("k")?)?)),
+    params: &[
+        ParamSpec {
+            name: "k",
+            kind: Kind::positive(0.0, 1000.0),
+            default: Some("5"),
+            help: "threshold in robust standard deviations (1.4826 × MAD) of the difference from the median",
+        },
+        ParamSpec {
+            name: "dark",
+            kind: Kind::File,
+            default: Some("none"),
+            help: "master dark frame whose outliers (hot pixels) are repaired too (same size and channels)",
+        },
+    ],
+    build: |a| {
+        let hot = Hotpixel::new(a.number("k")?)?;
+        Ok(Box::new(match a.file("dark")? {
+            Some(path) => {
+                let frame = super::flatfield::read_frame(path, false)?;
+                hot.with_dark(frame.path, frame.planes)
+            }
+            None => hot,
+        }))
+    },
 };
 
 #[cfg(test)]
@@ -268,13 +320,44 @@ mod tests {
     }
 
     #[test]
+    fn a_master_dark_marks_hot_pixels_the_image_hides() {
+        // Hot pixels at 0.05 above the dark's noise (spread 0.002): in the image
+        // (noise spread 0.02) they are within 5σ, so only the dark finds them.
+        let (w, h) = (40, 30);
+        let (nd, ni) = (noise(w, h, 5), noise(w, h, 9));
+        let hot = [(3, 4), (20, 15), (39, 29)];
+        let dark = Plane::from_fn(w, h, |x, y| {
+            0.01 + 0.004 * (nd.get(x, y) - 0.5) + if hot.contains(&(x, y)) { 0.05 } else { 0.0 }
+        })
+        .unwrap();
+        let image = Plane::from_fn(w, h, |x, y| 0.4 + 0.04 * (ni.get(x, y) - 0.5)).unwrap();
+        let gray = |p: &Plane| Raster::new(vec![p.clone()], Layout::Gray, Encoding::Linear).unwrap();
+        let plain = Hotpixel::new(5.0).unwrap().apply(gray(&image)).unwrap();
+        assert_eq!(plain.metadata.notes[0].value, NoteValue::Number { value: 0.0, unit: "" });
+        let with_dark = Hotpixel::new(5.0).unwrap().with_dark("d.tif".into(), vec![dark.clone()]);
+        let out = with_dark.apply(gray(&image)).unwrap();
+        assert_eq!(out.metadata.notes[0].value, NoteValue::Number { value: hot.len() as f64, unit: "" });
+        let median = neighbour_median(&image);
+        for y in 0..h {
+            for x in 0..w {
+                let want = if hot.contains(&(x, y)) { median.get(x, y) } else { image.get(x, y) };
+                assert_eq!(out.planes()[0].get(x, y), want, "({x}, {y})");
+            }
+        }
+        // A dark of another size is refused, naming it.
+        let small = Plane::filled(4, 3, 0.0).unwrap();
+        let e = Hotpixel::new(5.0).unwrap().with_dark("d.tif".into(), vec![small]).apply(gray(&image));
+        assert!(e.unwrap_err().to_string().contains("dark frame d.tif"));
+    }
+
+    #[test]
     fn tiny_and_flat_planes() {
         let mut one = Plane::filled(1, 1, 0.5).unwrap();
-        assert_eq!(repair_plane(&mut one, 5.0), 0);
+        assert_eq!(repair_plane(&mut one, 5.0, None), 0);
         // MAD 0; mean deviation 0.5/9, σ = 0.0696, 5σ = 0.35 < 0.5: repaired.
         let mut row = Plane::filled(9, 1, 0.5).unwrap();
         row.row_mut(0)[4] = 1.0;
-        assert_eq!(repair_plane(&mut row, 5.0), 1);
+        assert_eq!(repair_plane(&mut row, 5.0, None), 1);
         assert_eq!(row.row(0)[4], 0.5);
         // The fallback by hand: |d| = 0 (×6), 1, 1: MAD 0, mean 1/4, σ = √(π/2)/4.
         let sigma = robust_sigma(&[0.0, 0.0, 1.0, 0.0, 0.0, -1.0, 0.0, 0.0]);

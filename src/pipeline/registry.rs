@@ -12,6 +12,7 @@ pub static OPERATORS: &[&OpSpec] = &[
     &filter::BOX,
     &filter::SHARPEN,
     &filter::MEDIAN,
+    &filter::BILATERAL,
     &edge::SOBEL,
     &edge::SCHARR,
     &edge::LAPLACE,

@@ -2,13 +2,16 @@
 //! light, so they run in linear light, with alpha premultiplied while they
 //! work) and `median` (a rank filter, right in any domain).
 
+mod bilateral;
 mod boxmean;
 mod engine;
+mod exptable;
 mod fastgauss;
 mod median;
 pub(crate) mod rows;
 mod sharpen;
 
+pub use bilateral::{BILATERAL, Bilateral, MAX_BILATERAL_RADIUS, RangeOn};
 pub use boxmean::{BOX, BoxMean, MAX_BOX_RADIUS, box_mean};
 pub use engine::{correlate_2d, correlate_separable};
 pub use fastgauss::{ExtendedBox, MAX_KERNEL_L1, cascade_gauss};

@@ -13,6 +13,7 @@ pub static OPERATORS: &[&OpSpec] = &[
     &filter::SHARPEN,
     &filter::MEDIAN,
     &filter::BILATERAL,
+    &filter::NLMEANS,
     &edge::SOBEL,
     &edge::SCHARR,
     &edge::LAPLACE,

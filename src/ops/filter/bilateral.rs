@@ -75,7 +75,7 @@ pub struct Bilateral {
 
 /// How the window sums become outputs.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
-enum Finish {
+pub(super) enum Finish {
     /// `out_k = S_k / Σ w` for every value plane.
     Mean,
     /// Premultiplied values with the alpha plane last: `out_k = S_k / S_alpha`
@@ -148,11 +148,7 @@ impl Bilateral {
             .map(|_| Plane::zeros(w, h).unwrap_or_else(|_| unreachable!("same size as a valid plane")))
             .collect();
         let rows = tile::band_rows(w * (values.len() + 1), r);
-        let mut chunks: Vec<_> = outs.iter_mut().map(|p| p.as_mut_slice().chunks_mut(rows * w)).collect();
-        let bands: Vec<Vec<&mut [f32]>> =
-            (0..h.div_ceil(rows)).map(|_| chunks.iter_mut().filter_map(|c| c.next()).collect()).collect();
-        bands.into_par_iter().enumerate().for_each(|(b, mut band)| {
-            let y0 = b * rows;
+        for_each_band_of(&mut outs, rows, |y0, band| {
             let n = band[0].len() / w;
             let gpad = padded_band(guide, y0, n, r, self.border);
             let vpads: Vec<Vec<f32>> = values.iter().map(|v| padded_band(v, y0, n, r, self.border)).collect();
@@ -178,16 +174,31 @@ impl Bilateral {
                         }
                     }
                 }
-                finish_row(finish, &wsum, &sums, &mut band, i * w..(i + 1) * w);
+                finish_row(finish, &wsum, &sums, band, i * w..(i + 1) * w);
             }
         });
         outs
     }
 }
 
+/// Runs `kernel(y0, band)` for every band of `rows` full rows of the planes
+/// `outs` (all one size) in parallel, where `band[k]` is plane k's mutable
+/// slice of rows `y0 ..`: [`tile::for_each_band`] for several outputs at once.
+pub(super) fn for_each_band_of<F>(outs: &mut [Plane], rows: usize, kernel: F)
+where
+    F: Fn(usize, &mut [&mut [f32]]) + Sync + Send,
+{
+    let (w, h) = (outs[0].width(), outs[0].height());
+    let rows = rows.max(1);
+    let mut chunks: Vec<_> = outs.iter_mut().map(|p| p.as_mut_slice().chunks_mut(rows * w)).collect();
+    let bands: Vec<Vec<&mut [f32]>> =
+        (0..h.div_ceil(rows)).map(|_| chunks.iter_mut().filter_map(|c| c.next()).collect()).collect();
+    bands.into_par_iter().enumerate().for_each(|(b, mut band)| kernel(b * rows, &mut band));
+}
+
 /// Rows `y0 − r .. y0 + n + r` of `p`, each padded by `r` samples a side
 /// under `border`, as one row-major block `(n + 2r) × (width + 2r)`.
-fn padded_band(p: &Plane, y0: usize, n: usize, r: usize, border: Border) -> Vec<f32> {
+pub(super) fn padded_band(p: &Plane, y0: usize, n: usize, r: usize, border: Border) -> Vec<f32> {
     let w = p.width();
     let pw = w + 2 * r;
     let const_row = vec![border.constant_value(); w];
@@ -199,17 +210,18 @@ fn padded_band(p: &Plane, y0: usize, n: usize, r: usize, border: Border) -> Vec<
     out
 }
 
-fn finish_row(
+/// Writes row `span` of the outputs from the window sums (see [`Finish`]).
+pub(super) fn finish_row<S: AsRef<[f32]>>(
     finish: Finish,
     wsum: &[f32],
-    sums: &[Vec<f32>],
+    sums: &[S],
     band: &mut [&mut [f32]],
     span: std::ops::Range<usize>,
 ) {
     match finish {
         Finish::Mean => {
             for (out, s) in band.iter_mut().zip(sums) {
-                for ((o, &s), &ws) in out[span.clone()].iter_mut().zip(s).zip(wsum) {
+                for ((o, &s), &ws) in out[span.clone()].iter_mut().zip(s.as_ref()).zip(wsum) {
                     *o = s / ws;
                 }
             }
@@ -218,12 +230,12 @@ fn finish_row(
             let (alpha, colour) =
                 sums.split_last().unwrap_or_else(|| unreachable!("alpha is among the values"));
             for (out, s) in band.iter_mut().zip(colour) {
-                for ((o, &s), &a) in out[span.clone()].iter_mut().zip(s).zip(alpha) {
+                for ((o, &s), &a) in out[span.clone()].iter_mut().zip(s.as_ref()).zip(alpha.as_ref()) {
                     *o = if a > 0.0 { s / a } else { 0.0 };
                 }
             }
             if keep_alpha && let Some(out) = band.get_mut(colour.len()) {
-                for ((o, &a), &ws) in out[span].iter_mut().zip(alpha).zip(wsum) {
+                for ((o, &a), &ws) in out[span].iter_mut().zip(alpha.as_ref()).zip(wsum) {
                     *o = a / ws;
                 }
             }
@@ -242,7 +254,7 @@ fn range_u(a: &[f32], b: &[f32], c: f32, u: &mut [f32]) {
 
 /// `acc[x] += w[x]`.
 #[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-pub(crate) fn add(acc: &mut [f32], w: &[f32]) {
+pub(super) fn add(acc: &mut [f32], w: &[f32]) {
     for (a, &w) in acc.iter_mut().zip(w) {
         *a += w;
     }
@@ -250,14 +262,14 @@ pub(crate) fn add(acc: &mut [f32], w: &[f32]) {
 
 /// `acc[x] += w[x] · v[x]`.
 #[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-pub(crate) fn add_product(acc: &mut [f32], w: &[f32], v: &[f32]) {
+pub(super) fn add_product(acc: &mut [f32], w: &[f32], v: &[f32]) {
     for ((a, &w), &v) in acc.iter_mut().zip(w).zip(v) {
         *a += w * v;
     }
 }
 
 /// `p · alpha`, sample by sample.
-pub(crate) fn premultiplied(p: &Plane, alpha: &Plane) -> Plane {
+pub(super) fn premultiplied(p: &Plane, alpha: &Plane) -> Plane {
     let data = p.as_slice().iter().zip(alpha.as_slice()).map(|(v, a)| v * a).collect();
     Plane::from_vec(p.width(), p.height(), data)
         .unwrap_or_else(|_| unreachable!("same size as a valid plane"))

@@ -8,6 +8,7 @@ mod cli;
 mod cmyk;
 mod codecs;
 mod colour;
+mod denoise;
 mod faults;
 mod fidelity;
 mod filters;

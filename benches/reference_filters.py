@@ -21,6 +21,14 @@ JSON object: "lib.workload" -> median seconds for the whole image.
   sobel-magnitude    cv2.Sobel(gray, CV_32F, 1, 0) and (0, 1) (ksize 3,
                      BORDER_REFLECT) + cv2.magnitude; scipy.ndimage.sobel on both
                      axes + numpy.hypot.
+  bilateral-luma     cv2.bilateralFilter(rgb, 9, 0.1, 2, BORDER_REFLECT) on the interleaved
+                     encoded float32 image (rgb-encoded.npy): one weight per neighbour for
+                     the three channels, from the L1 colour distance (Pumice: from luma).
+  bilateral-channels cv2.bilateralFilter(plane, 9, 0.1, 2, BORDER_REFLECT) per plane.
+  nlmeans            skimage.restoration.denoise_nl_means(noisy1000, patch_size=7,
+                     patch_distance=10, h=0.08, fast_mode=True) (single-threaded);
+                     cv2.fastNlMeansDenoising(u8 codes, h=0.08*255, templateWindowSize=7,
+                     searchWindowSize=21): another algorithm on 8-bit data, for context.
 OpenCV runs with 2 threads (cv2.setNumThreads(2)); scipy is single-threaded.
 """
 import argparse
@@ -66,6 +74,19 @@ def main():
             return cv2.magnitude(gx, gy)
 
         out["cv2.sobel-magnitude"] = median_time(cv_sobel, args.repeats)
+        enc = np.load(f"{args.folder}/rgb-encoded.npy")
+        enc_hwc = np.ascontiguousarray(np.moveaxis(enc, 0, -1))
+        out["cv2.bilateral-luma"] = median_time(
+            lambda: cv2.bilateralFilter(enc_hwc, 9, 0.1, 2, borderType=cv2.BORDER_REFLECT), args.repeats
+        )
+        out["cv2.bilateral-channels"] = median_time(
+            lambda: [cv2.bilateralFilter(p, 9, 0.1, 2, borderType=cv2.BORDER_REFLECT) for p in enc], args.repeats
+        )
+        noisy = np.load(f"{args.folder}/noisy1000.npy")
+        codes = np.clip(np.round(noisy * 255), 0, 255).astype(np.uint8)
+        out["cv2.nlmeans"] = median_time(
+            lambda: cv2.fastNlMeansDenoising(codes, None, 0.08 * 255, 7, 21), args.repeats
+        )
     except ImportError as e:
         print(f"opencv not timed: {e}", file=sys.stderr)
     try:
@@ -94,6 +115,15 @@ def main():
         )
     except ImportError as e:
         print(f"scipy not timed: {e}", file=sys.stderr)
+    try:
+        from skimage.restoration import denoise_nl_means
+
+        noisy = np.load(f"{args.folder}/noisy1000.npy")
+        out["skimage.nlmeans"] = median_time(
+            lambda: denoise_nl_means(noisy, patch_size=7, patch_distance=10, h=0.08, fast_mode=True), 3
+        )
+    except ImportError as e:
+        print(f"scikit-image not timed: {e}", file=sys.stderr)
     print(json.dumps(out))
 
 

@@ -14,6 +14,10 @@ use crate::ops::{Domain, Operator};
 use crate::raster::{Plane, Raster};
 use crate::tile::{self, Border};
 
+/// Samples of a row processed together: the dozen row buffers of one tap
+/// (guide, values, weights, sums) then fit in a 48 KiB L1 data cache.
+const PIECE: usize = 512;
+
 /// Largest window radius accepted (explicit or from sigma).
 pub const MAX_BILATERAL_RADIUS: usize = 100;
 
@@ -153,28 +157,57 @@ impl Bilateral {
             let gpad = padded_band(guide, y0, n, r, self.border);
             let vpads: Vec<Vec<f32>> = values.iter().map(|v| padded_band(v, y0, n, r, self.border)).collect();
             let pw = w + 2 * r;
-            let mut wsum = vec![0.0f32; w];
-            let mut sums = vec![vec![0.0f32; w]; values.len()];
-            let mut u = vec![0.0f32; w];
-            let mut wrow = vec![0.0f32; w];
+            // Work on pieces of a row so that every row buffer a tap touches
+            // stays in L1 across the whole window.
+            let piece = PIECE.min(w);
+            let mut wsum = vec![0.0f32; piece];
+            let mut sums = vec![vec![0.0f32; piece]; values.len()];
+            let mut u = vec![0.0f32; piece];
+            let mut wrow = vec![0.0f32; piece];
             for i in 0..n {
-                wsum.fill(0.0);
-                sums.iter_mut().for_each(|s| s.fill(0.0));
-                let centre = (i + r) * pw + r;
-                let g0 = &gpad[centre..centre + w];
-                for (di, row) in &self.taps {
-                    let base = ((i + r) as isize + di) as usize * pw + r;
-                    for &(dj, ws) in row {
-                        let at = (base as isize + dj) as usize;
-                        range_u(g0, &gpad[at..at + w], self.range_coeff, &mut u);
-                        self.table.eval_row(&u, ws, &mut wrow);
-                        add(&mut wsum, &wrow);
-                        for (s, vp) in sums.iter_mut().zip(&vpads) {
-                            add_product(s, &wrow, &vp[at..at + w]);
+                for x0 in (0..w).step_by(piece) {
+                    let len = piece.min(w - x0);
+                    let (wsum, u, wrow) = (&mut wsum[..len], &mut u[..len], &mut wrow[..len]);
+                    wsum.fill(0.0);
+                    sums.iter_mut().for_each(|s| s[..len].fill(0.0));
+                    let centre = (i + r) * pw + r + x0;
+                    let g0 = &gpad[centre..centre + len];
+                    for (di, row) in &self.taps {
+                        let base = ((i + r) as isize + di) as usize * pw + r + x0;
+                        for &(dj, ws) in row {
+                            let at = (base as isize + dj) as usize;
+                            let gk = &gpad[at..at + len];
+                            let c = self.range_coeff;
+                            match (&mut sums[..], &vpads[..]) {
+                                // the common layouts in one pass each
+                                ([s], [v]) => {
+                                    tap_one(&self.table, g0, gk, c, ws, wsum, &mut s[..len], &v[at..at + len])
+                                }
+                                ([s0, s1, s2], [v0, v1, v2]) => tap_three(
+                                    &self.table,
+                                    (g0, gk),
+                                    c,
+                                    ws,
+                                    wsum,
+                                    &mut s0[..len],
+                                    &mut s1[..len],
+                                    &mut s2[..len],
+                                    (&v0[at..at + len], &v1[at..at + len], &v2[at..at + len]),
+                                ),
+                                _ => {
+                                    range_u(g0, gk, c, u);
+                                    self.table.eval_row(u, ws, wrow);
+                                    add(wsum, wrow);
+                                    for (s, vp) in sums.iter_mut().zip(&vpads) {
+                                        add_product(&mut s[..len], wrow, &vp[at..at + len]);
+                                    }
+                                }
+                            }
                         }
                     }
+                    let piece_sums: Vec<&[f32]> = sums.iter().map(|s| &s[..len]).collect();
+                    finish_row(finish, wsum, &piece_sums, band, i * w + x0..i * w + x0 + len);
                 }
-                finish_row(finish, &wsum, &sums, band, i * w..(i + 1) * w);
             }
         });
         outs
@@ -240,6 +273,56 @@ pub(super) fn finish_row<S: AsRef<[f32]>>(
                 }
             }
         }
+    }
+}
+
+/// One tap for one value plane, fused: `w = ws · exp(−(gk − g0)² · c)`,
+/// `wsum += w`, `s += w · v` (the same arithmetic as the separate passes).
+#[allow(clippy::too_many_arguments)]
+#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
+fn tap_one(
+    table: &ExpTable,
+    g0: &[f32],
+    gk: &[f32],
+    c: f32,
+    ws: f32,
+    wsum: &mut [f32],
+    s: &mut [f32],
+    v: &[f32],
+) {
+    for ((((a, &b), ws_acc), s), &v) in g0.iter().zip(gk).zip(wsum.iter_mut()).zip(s.iter_mut()).zip(v) {
+        let d = b - a;
+        let w = ws * table.eval(d * d * c);
+        *ws_acc += w;
+        *s += w * v;
+    }
+}
+
+/// [`tap_one`] for three value planes sharing the weights.
+#[allow(clippy::too_many_arguments)]
+#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
+fn tap_three(
+    table: &ExpTable,
+    (g0, gk): (&[f32], &[f32]),
+    c: f32,
+    ws: f32,
+    wsum: &mut [f32],
+    s0: &mut [f32],
+    s1: &mut [f32],
+    s2: &mut [f32],
+    (v0, v1, v2): (&[f32], &[f32], &[f32]),
+) {
+    let sums = s0.iter_mut().zip(s1.iter_mut()).zip(s2.iter_mut());
+    let vals = v0.iter().zip(v1).zip(v2);
+    for ((((a, &b), ws_acc), ((s0, s1), s2)), ((&v0, &v1), &v2)) in
+        g0.iter().zip(gk).zip(wsum.iter_mut()).zip(sums).zip(vals)
+    {
+        let d = b - a;
+        let w = ws * table.eval(d * d * c);
+        *ws_acc += w;
+        *s0 += w * v0;
+        *s1 += w * v1;
+        *s2 += w * v2;
     }
 }
 

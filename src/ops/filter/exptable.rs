@@ -48,12 +48,17 @@ impl ExpTable {
     /// and for `+∞` or NaN.
     #[inline]
     pub fn eval(&self, u: f32) -> f32 {
-        let t = (u * STEPS_PER_UNIT as f32).min(ENTRIES as f32);
-        // `t` is in [0, ENTRIES] (NaN becomes ENTRIES through `min`), so the
-        // index and its neighbour are in bounds.
-        let i = t as usize;
+        // `t` in [0, ENTRIES]: NaN and +∞ become ENTRIES through `min` (weight
+        // 0), a negative u becomes 0.
+        let t = (u * STEPS_PER_UNIT as f32).min(ENTRIES as f32).max(0.0);
+        // i = round(t − 1/2) by the 1.5·2²³ trick (exact for t < 2²²): ⌊t⌋, or
+        // t − 1 when t is a whole number, where frac = 1 gives the same value.
+        // Plain bit arithmetic, so the loop vectorises (a float-to-int `as`
+        // cast saturates, which the compiler does lane by lane).
+        const MAGIC: f32 = 12_582_912.0;
+        let i = ((t - 0.5 + MAGIC).to_bits().wrapping_sub(MAGIC.to_bits())).min(ENTRIES as u32) as usize;
         let frac = t - i as f32;
-        let (a, b) = (self.values[i.min(ENTRIES)], self.values[i.min(ENTRIES) + 1]);
+        let (a, b) = (self.values[i], self.values[i + 1]);
         a + frac * (b - a)
     }
 

@@ -177,11 +177,23 @@ impl NlMeans {
                             sub_f64(&mut colsum, &e[(i - 1) * ew..i * ew]);
                         }
                         box_row(&colsum, 2 * pr + 1, inv_count, &mut dist);
+                        let span = i * w..(i + 1) * w;
+                        let at = ((i + halo) as isize + ty) as usize * pw + (halo_i + tx) as usize;
+                        if let ([s], [v]) = (&mut sums[..], vpads) {
+                            // gray: the weight and both sums in one pass
+                            accumulate_one(
+                                &self.table,
+                                &dist,
+                                (self.noise_offset, self.inv_h2),
+                                &mut wsum[span.clone()],
+                                &mut s[span.clone()],
+                                &v[at..at + w],
+                            );
+                            continue;
+                        }
                         weight_u(&mut dist, self.noise_offset, self.inv_h2);
                         self.table.eval_row(&dist, 1.0, &mut wrow);
-                        let span = i * w..(i + 1) * w;
                         add(&mut wsum[span.clone()], &wrow);
-                        let at = ((i + halo) as isize + ty) as usize * pw + (halo_i + tx) as usize;
                         for (s, v) in sums.iter_mut().zip(vpads) {
                             add_product(&mut s[span.clone()], &wrow, &v[at..at + w]);
                         }
@@ -238,6 +250,24 @@ fn box_row(col: &[f64], len: usize, scale: f64, out: &mut [f32]) {
 fn weight_u(d: &mut [f32], offset: f32, inv_h2: f32) {
     for d in d.iter_mut() {
         *d = (*d - offset).max(0.0) * inv_h2;
+    }
+}
+
+/// One shift on one value plane, fused: `w = exp(−max(d − offset, 0) · inv_h2)`,
+/// `wsum += w`, `s += w · v` (the same arithmetic as the separate passes).
+#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
+fn accumulate_one(
+    table: &ExpTable,
+    dist: &[f32],
+    (offset, inv_h2): (f32, f32),
+    wsum: &mut [f32],
+    s: &mut [f32],
+    v: &[f32],
+) {
+    for (((&d, ws), s), &v) in dist.iter().zip(wsum.iter_mut()).zip(s.iter_mut()).zip(v) {
+        let w = table.eval((d - offset).max(0.0) * inv_h2);
+        *ws += w;
+        *s += w * v;
     }
 }
 

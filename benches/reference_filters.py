@@ -28,6 +28,14 @@ JSON object: "lib.workload" -> median seconds for the whole image.
                      the 8-bit codes (OpenCV's Canny takes only u8; thresholds
                      scaled by 255; it thins without interpolation); its row is
                      labelled cv2u8.
+  bilateral-luma     cv2.bilateralFilter(rgb, 9, 0.1, 2, BORDER_REFLECT) on the interleaved
+                     encoded float32 image (rgb-encoded.npy): one weight per neighbour for
+                     the three channels, from the L1 colour distance (Pumice: from luma).
+  bilateral-channels cv2.bilateralFilter(plane, 9, 0.1, 2, BORDER_REFLECT) per plane.
+  nlmeans            skimage.restoration.denoise_nl_means(noisy1000, patch_size=7,
+                     patch_distance=10, h=0.08, fast_mode=True) (single-threaded);
+                     cv2.fastNlMeansDenoising(u8 codes, h=0.08*255, templateWindowSize=7,
+                     searchWindowSize=21): another algorithm on 8-bit data, for context.
 OpenCV runs with 2 threads (cv2.setNumThreads(2)); scipy is single-threaded.
 """
 import argparse
@@ -80,6 +88,19 @@ def main():
             return cv2.Canny(smooth, 25.5, 51.0, L2gradient=True)
 
         out["cv2u8.canny-1"] = median_time(cv_canny, args.repeats)
+        enc = np.load(f"{args.folder}/rgb-encoded.npy")
+        enc_hwc = np.ascontiguousarray(np.moveaxis(enc, 0, -1))
+        out["cv2.bilateral-luma"] = median_time(
+            lambda: cv2.bilateralFilter(enc_hwc, 9, 0.1, 2, borderType=cv2.BORDER_REFLECT), args.repeats
+        )
+        out["cv2.bilateral-channels"] = median_time(
+            lambda: [cv2.bilateralFilter(p, 9, 0.1, 2, borderType=cv2.BORDER_REFLECT) for p in enc], args.repeats
+        )
+        noisy = np.load(f"{args.folder}/noisy1000.npy")
+        codes = np.clip(np.round(noisy * 255), 0, 255).astype(np.uint8)
+        out["cv2.nlmeans"] = median_time(
+            lambda: cv2.fastNlMeansDenoising(codes, None, 0.08 * 255, 7, 21), args.repeats
+        )
     except ImportError as e:
         print(f"opencv not timed: {e}", file=sys.stderr)
     try:
@@ -114,6 +135,12 @@ def main():
         out["skimage.canny-1"] = median_time(
             lambda: skimage.feature.canny(gray, sigma=1.0, low_threshold=0.1, high_threshold=0.2, mode="reflect"),
             3,
+        )
+        from skimage.restoration import denoise_nl_means
+
+        noisy = np.load(f"{args.folder}/noisy1000.npy")
+        out["skimage.nlmeans"] = median_time(
+            lambda: denoise_nl_means(noisy, patch_size=7, patch_distance=10, h=0.08, fast_mode=True), 3
         )
     except ImportError as e:
         print(f"scikit-image not timed: {e}", file=sys.stderr)

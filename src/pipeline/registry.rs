@@ -12,6 +12,8 @@ pub static OPERATORS: &[&OpSpec] = &[
     &filter::BOX,
     &filter::SHARPEN,
     &filter::MEDIAN,
+    &filter::BILATERAL,
+    &filter::NLMEANS,
     &edge::SOBEL,
     &edge::SCHARR,
     &edge::LAPLACE,

@@ -9,6 +9,7 @@ mod cli;
 mod cmyk;
 mod codecs;
 mod colour;
+mod denoise;
 mod faults;
 mod fidelity;
 mod filters;

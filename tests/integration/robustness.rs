@@ -20,6 +20,7 @@ const EXTRA: &[(&str, &[(&str, &str)])] = &[
     ("crop", &[("width", "1"), ("height", "1")]),
     ("pad", &[("width", "5"), ("height", "4")]),
     ("window", &[("low", "0.1"), ("high", "0.9")]),
+    ("nlmeans", &[("h", "0.1")]),
 ];
 
 /// A value of `kind` for a required parameter.

@@ -1,19 +1,26 @@
 //! Neighbourhood filters: `gauss`, `convolve`, `box` and `sharpen` (they mix
 //! light, so they run in linear light, with alpha premultiplied while they
-//! work) and `median` (a rank filter, right in any domain).
+//! work), `median` (a rank filter, right in any domain), and the
+//! edge-preserving `bilateral` and `nlmeans` (their weights compare encoded
+//! values).
 
+mod bilateral;
 mod boxmean;
 mod engine;
+pub mod exptable;
 mod fastgauss;
 mod median;
 pub(crate) mod network;
+mod nlmeans;
 pub(crate) mod rows;
 mod sharpen;
 
+pub use bilateral::{BILATERAL, Bilateral, MAX_BILATERAL_RADIUS, RangeOn};
 pub use boxmean::{BOX, BoxMean, MAX_BOX_RADIUS, box_mean};
 pub use engine::{correlate_2d, correlate_separable};
 pub use fastgauss::{ExtendedBox, MAX_KERNEL_L1, cascade_gauss};
 pub use median::{MAX_MEDIAN_RADIUS, MEDIAN, Median, Shape};
+pub use nlmeans::{H_PER_SIGMA, MAX_PATCH, MAX_SEARCH, NLMEANS, NlMeans};
 pub use sharpen::{SHARPEN, Sharpen};
 
 use crate::error::{Error, ParamError};

@@ -376,8 +376,7 @@ impl Operator for Deskew {
     }
 
     fn apply(&self, raster: Raster) -> Result<Raster, Error> {
-        let gray = super::gray_plane(&raster)?;
-        let (estimate, mask) = measure(&gray, self.max_angle)?;
+        let (estimate, mask) = measure(&*super::gray_plane(&raster)?, self.max_angle)?;
         let mut raster = raster;
         let note = |name, value| Note { operator: "deskew", name, value };
         // Notes are rounded to what the measurement resolves (about 0.01°).

@@ -5,6 +5,12 @@ Called with the 2480x3508 8-bit page and its 0/1 ink mask the benchmark wrote
 (raw bytes), so both sides measure the same data in the same run. Prints one
 JSON object: "lib.workload" -> median seconds.
 
+  rotate-bicubic, rotate-bilinear
+               cv2.warpAffine(page as float32 in [0, 1], the turn by 1.7 degrees
+               counter-clockwise about the centre, INTER_CUBIC / INTER_LINEAR,
+               BORDER_CONSTANT 1.0) with 2 threads (OpenCV's cubic is Keys
+               a = -0.75, Pumice's Catmull-Rom a = -0.5: the same 4x4 taps);
+               scipy.ndimage.rotate(order=1, reshape=False) for bilinear.
   label        scipy.ndimage.label(mask, structure=numpy.ones((3, 3)));
                skimage.measure.label(mask, connectivity=2).
   dust-binary  skimage.morphology.remove_small_objects(mask, max_size=12, connectivity=2)
@@ -32,8 +38,24 @@ def main():
     codes = np.fromfile(args.page, dtype=np.uint8).reshape(H, W)
     mask = np.fromfile(args.ink, dtype=np.uint8).reshape(H, W).astype(bool)
     out = {}
+    page = codes.astype(np.float32) / 255.0
+    try:
+        import cv2
+
+        cv2.setNumThreads(2)
+        m = cv2.getRotationMatrix2D(((W - 1) / 2.0, (H - 1) / 2.0), 1.7, 1.0)
+        for name, flag in [("rotate-bicubic", cv2.INTER_CUBIC), ("rotate-bilinear", cv2.INTER_LINEAR)]:
+            out[f"cv2.{name}"] = median_time(
+                lambda flag=flag: cv2.warpAffine(page, m, (W, H), flags=flag, borderMode=cv2.BORDER_CONSTANT,
+                                                 borderValue=1.0), args.repeats)
+    except ImportError as e:
+        print(f"reference: OpenCV unavailable ({e})", file=sys.stderr)
     try:
         from scipy import ndimage
+
+        out["scipy.rotate-bilinear"] = median_time(
+            lambda: ndimage.rotate(page, 1.7, reshape=False, order=1, mode="constant", cval=1.0),
+            max(1, args.repeats // 5))
 
         ones = np.ones((3, 3), dtype=int)
         out["scipy.label"] = median_time(lambda: ndimage.label(mask, structure=ones), args.repeats)

@@ -1,7 +1,8 @@
 //! Throughput of the scan operators on an A4 page at 300 dpi (2480×3508, 8-bit
 //! gray, an invented page of text-like blocks turned by 1.7°), beside
 //! scipy.ndimage and scikit-image (benches/reference_scan.py) on the same
-//! bytes, as ratios. Deskew has no reference; its time is printed in ms.
+//! bytes, as ratios, and the turn deskew makes beside OpenCV's warpAffine.
+//! Deskew has no reference; its time is printed in ms.
 //! `cargo bench --bench scan [-- NAME]`.
 
 #[path = "common.rs"]
@@ -89,6 +90,17 @@ fn main() {
             ours.push((name, t));
         }
     }
+    // The turn alone, as deskew makes it: −1.7° on the page in linear light, size kept, paper fill.
+    let linear = common::to_linear(&page);
+    for (name, step) in [
+        ("rotate-bicubic", "rotate:angle=-1.7,filter=bicubic,expand=false,fill=white"),
+        ("rotate-bilinear", "rotate:angle=-1.7,filter=bilinear,expand=false,fill=white"),
+    ] {
+        if only.wants(name) {
+            let op = Step::parse(step).unwrap().op;
+            ours.push((name, median_with(|| linear.clone(), |r| drop(op.apply(r).unwrap()))));
+        }
+    }
     if only.wants("label") {
         ours.push(("label", median(|| drop(label(&mask, PAGE_W, PAGE_H).unwrap()))));
     }
@@ -101,5 +113,5 @@ fn main() {
         }
     }
     let reference = common::reference_times("reference_scan.py", &[&page_path, &ink_path]);
-    print_table(mpix, &ours, &reference, &["scipy", "skimage"]);
+    print_table(mpix, &ours, &reference, &["cv2", "scipy", "skimage"]);
 }

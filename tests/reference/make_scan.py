@@ -21,6 +21,11 @@ manifest).
 * dust (two-level): skimage.morphology.remove_small_objects(mask, max_size=A,
   connectivity=2) removes components of at most A pixels: dust:max-area=A on
   the mask as a 0/1 image with polarity=light (the objects are the 1s).
+* paper: skimage.data.page and text whole, the paper mask (samples
+  skimage.filters.threshold_sauvola(window_size=25) puts above their local
+  threshold) and the paper's spread before flattening (numpy std and mean of
+  the codes under the mask); the Rust test runs the steps listed and requires
+  the stated drop of the spread (std) or of the relative spread (std / mean).
 * dust (gray): skimage.morphology.area_closing(codes, area_threshold=A+1,
   connectivity=2) and area_opening(...) on a crop of skimage.data.page:
   dust:max-area=A,polarity=dark and polarity=light. Both work on the uint8 codes.
@@ -171,10 +176,37 @@ def generate(folder):
     # whole, and the paper region the test measures the spread over — the
     # samples skimage.filters.threshold_sauvola(window_size=25) puts above
     # their local threshold (paper, not ink), as a 0/255 mask.
+    # The manifest holds the paper's spread before flattening, by numpy
+    # (population std of the 8-bit codes over the mask, and that std over
+    # their mean), and the steps the Rust test runs with the factors it requires.
+    paper_steps = {
+        "page": [("illumination:method=paper,radius=20", "std", 2.5)],
+        "text": [
+            ("illumination:method=paper,radius=10", "relative", 1.4),
+            ("illumination:method=paper,radius=10,keep-offset=true", "std", 1.4),
+        ],
+    }
     for name, image in [("page", data.page()), ("text", data.text())]:
         save_png(folder, f"{name}.png", image)
         paper = image > filters.threshold_sauvola(image, window_size=25)
         save_png(folder, f"{name}-paper-mask.png", (paper * 255).astype(np.uint8))
+        codes_on_paper = image[paper].astype(np.float64)
+        for i, (step, spread, factor) in enumerate(paper_steps[name]):
+            cases.append(
+                {
+                    "id": f"paper-{name}-{i}",
+                    "reference": "skimage.data." + name + "(), paper = image > skimage.filters.threshold_sauvola("
+                    "image, window_size=25); numpy std and mean of the codes there",
+                    "kind": "paper",
+                    "input": f"{name}.png",
+                    "output": f"{name}-paper-mask.png",
+                    "step": step,
+                    "measure": spread,
+                    "factor": factor,
+                    "std_before": float(codes_on_paper.std()),
+                    "mean_before": float(codes_on_paper.mean()),
+                }
+            )
 
     crop = data.page()[40:140, 0:160]
     save_png(folder, "page-crop.png", crop)

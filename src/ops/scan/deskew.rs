@@ -34,7 +34,7 @@ coarse:  θ over [−max-angle, max-angle] in steps of atan(1/w₂), on the weig
          cell's mass to the nearest bin
 fine:    on the reduced copy, each pixel spread over the bins as a Gaussian of
          σ = 1 bin: θ within ±1.5 coarse steps of the coarse best in steps of 0.1°,
-         then within ±0.12° of that best in steps of 0.02°; the best is refined
+         then within ±0.08° of that best in steps of 0.02°; the best is refined
          by the parabola through it and its neighbours
 found:   E(best) / median of E over the coarse angles ≥ 1.25, and at least 32 ink pixels
 ```
@@ -329,8 +329,8 @@ fn measure(gray: &Plane, max_angle: f64) -> Result<(SkewEstimate, Option<Ink>), 
     let middle = grid(lo, hi, 5.0 * FINE_STEP);
     let best_middle = middle[argmax(&scores(&fine_pts, r1, &middle, Splat::Gaussian))];
     let fine_angles = grid(
-        (best_middle - 6.0 * FINE_STEP).max(-max_angle),
-        (best_middle + 6.0 * FINE_STEP).min(max_angle),
+        (best_middle - 4.0 * FINE_STEP).max(-max_angle),
+        (best_middle + 4.0 * FINE_STEP).min(max_angle),
         FINE_STEP,
     );
     let fine = scores(&fine_pts, r1, &fine_angles, Splat::Gaussian);
@@ -376,8 +376,7 @@ impl Operator for Deskew {
     }
 
     fn apply(&self, raster: Raster) -> Result<Raster, Error> {
-        let gray = super::gray_plane(&raster)?;
-        let (estimate, mask) = measure(&gray, self.max_angle)?;
+        let (estimate, mask) = measure(&*super::gray_plane(&raster)?, self.max_angle)?;
         let mut raster = raster;
         let note = |name, value| Note { operator: "deskew", name, value };
         // Notes are rounded to what the measurement resolves (about 0.01°).

@@ -24,7 +24,7 @@ polarity=light: out = γ(in), the area opening with area A = max-area + 1
 On a two-level plane (a binarised page: only two distinct values) this is
 exactly: label the 8-connected components of the speck-coloured pixels, and
 give every component of at most max-area pixels the other value; that path
-uses the two-pass labelling (pumice::ops::scan::label::label). Other planes
+uses the run-based two-pass labelling (pumice::ops::scan::label::label). Other planes
 use the union-find area filter (label::area_filter). Each colour plane is
 filtered on its own; alpha is kept. Output samples are input samples, so the
 result is the same in any encoding and exact codes stay exact. NaN samples
@@ -35,8 +35,9 @@ Domain: any (samples are moved, not mixed). No halo: whole-image operator.
 Sources: L. Vincent, \"Morphological area openings and closings for
 grey-scale images\", NATO Shape in Picture workshop, 1993; A. Meijster and
 M. H. F. Wilkinson, IEEE TPAMI 24(4):484–494, 2002 (union-find algorithm);
-A. Rosenfeld and J. L. Pfaltz, J. ACM 13(4), 1966 and K. Wu, E. Otoo and
-K. Suzuki, Pattern Analysis and Applications 12(2), 2009 (labelling)."
+A. Rosenfeld and J. L. Pfaltz, J. ACM 13(4), 1966 and L. He, Y. Chao and
+K. Suzuki, IEEE Trans. Image Processing 17(5), 2008 (run-based labelling,
+from memory)."
     };
 }
 

@@ -13,17 +13,20 @@ pub use autocrop::{AUTOCROP, Autocrop, CropMode};
 pub use deskew::{DESKEW, Deskew, SkewEstimate, measure_skew};
 pub use dust::{DUST, Dust};
 
+use std::borrow::Cow;
+
 use crate::color::luma;
 use crate::error::Error;
 use crate::raster::{Plane, Raster};
 use crate::tile;
 
-/// The plane the scan operators look at: the gray plane itself, or the BT.709
-/// weighted sum of R, G and B (ITU-R BT.709-6 §3.3) in the raster's encoding.
-pub fn gray_plane(raster: &Raster) -> Result<Plane, Error> {
+/// The plane the scan operators look at: the gray plane itself (borrowed, not
+/// copied), or the BT.709 weighted sum of R, G and B (ITU-R BT.709-6 §3.3) in
+/// the raster's encoding.
+pub fn gray_plane(raster: &Raster) -> Result<Cow<'_, Plane>, Error> {
     let p = raster.planes();
     if raster.layout().colour_channels() == 1 {
-        return Ok(p[0].clone());
+        return Ok(Cow::Borrowed(&p[0]));
     }
     let (w, h) = (raster.width(), raster.height());
     let mut gray = Plane::zeros(w, h)?;
@@ -32,7 +35,7 @@ pub fn gray_plane(raster: &Raster) -> Result<Plane, Error> {
         let s = |i: usize| &p[i].as_slice()[r.clone()];
         luma::weighted_sum(luma::BT709, s(0), s(1), s(2), band);
     });
-    Ok(gray)
+    Ok(Cow::Owned(gray))
 }
 
 /// The median of `values` (the lower middle for an even count), NaN ignored;

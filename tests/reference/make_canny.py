@@ -25,18 +25,18 @@ should reproduce it.
     python tests/reference/make_canny.py --check   # regenerate in a temporary folder, compare
 """
 
-import argparse
 import json
 import pathlib
 import sys
-import tempfile
-import tomllib
 
 import numpy as np
+
 import scipy
 import skimage
 import skimage.data
 import skimage.feature
+
+import fixture_check
 
 HERE = pathlib.Path(__file__).resolve().parent
 FIXTURES = HERE / "fixtures" / "canny"
@@ -151,58 +151,29 @@ def generate(folder):
 VERSION_KEYS = ("numpy_version", "scipy_version", "skimage_version")
 
 
+
+def differing_pixels(name, a, b):
+    """Edge maps may differ in a few pixels where f32/f64 rounding ties flip."""
+    if np.mean(a != b) > CHECK_FRACTION:
+        return f"{name}: {int(np.sum(a != b))} pixels differ (at most {CHECK_FRACTION:g} of them may)"
+    return None
+
+
 def check():
-    problems = []
-    with tempfile.TemporaryDirectory() as tmp:
-        fresh_dir = pathlib.Path(tmp)
-        fresh = generate(fresh_dir)
-        try:
-            committed = tomllib.loads((FIXTURES / "manifest.toml").read_text())
-        except FileNotFoundError:
-            print(f"no committed manifest in {FIXTURES}", file=sys.stderr)
-            return 1
-        for key in VERSION_KEYS:
-            if committed.get(key) != fresh[key]:
-                print(f"note: fixtures made with {key} {committed.get(key)}, checking with {fresh[key]}",
-                      file=sys.stderr)
-        # edge counts may move with a flipped pixel; the maps are compared below
-        strip = lambda m: [{k: v for k, v in c.items() if k != "edges"} for c in m["case"]]
-        if strip(committed) != strip(fresh):
-            problems.append("manifest.toml: the list of cases or their parameters differ")
-        fresh_files = {p.name for p in fresh_dir.glob("*.npy")}
-        old_files = {p.name for p in FIXTURES.glob("*.npy")}
-        problems += [f"{n}: committed but no longer generated" for n in sorted(old_files - fresh_files)]
-        problems += [f"{n}: generated but not committed" for n in sorted(fresh_files - old_files)]
-        for name in sorted(fresh_files & old_files):
-            a = np.load(FIXTURES / name, allow_pickle=False)
-            b = np.load(fresh_dir / name, allow_pickle=False)
-            if a.dtype != np.dtype("<f4") or a.shape != b.shape:
-                problems.append(f"{name}: committed {a.dtype} {a.shape}, generated {b.dtype} {b.shape}")
-            elif name.startswith("input-"):
-                if not np.array_equal(a, b):
-                    problems.append(f"{name}: input differs from a fresh draw")
-            elif np.mean(a != b) > CHECK_FRACTION:
-                problems.append(f"{name}: {int(np.sum(a != b))} pixels differ (at most {CHECK_FRACTION:g} of them may)")
-    if problems:
-        print(f"{len(problems)} mismatch(es) against {FIXTURES}:", file=sys.stderr)
-        for p in problems:
-            print(f"  {p}", file=sys.stderr)
-        return 1
-    print(f"canny fixtures match: {len(fresh['case'])} cases")
-    return 0
+    return fixture_check.check(
+        FIXTURES,
+        generate,
+        label="canny",
+        version_keys=VERSION_KEYS,
+        is_input=lambda name, m: name.startswith("input-"),
+        compare=differing_pixels,
+        # edge counts may move with a flipped pixel; the maps are compared
+        free_keys=("edges",),
+    )
 
 
 def main():
-    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    parser.add_argument("--check", action="store_true", help="regenerate in a temporary folder and compare")
-    if parser.parse_args().check:
-        return check()
-    for old in FIXTURES.glob("*.npy"):
-        old.unlink()
-    manifest = generate(FIXTURES)
-    size = sum(p.stat().st_size for p in FIXTURES.iterdir())
-    print(f"wrote {len(manifest['case'])} cases to {FIXTURES} ({size / 1024:.0f} KiB)")
-    return 0
+    return fixture_check.main(__doc__, FIXTURES, generate, check)
 
 
 if __name__ == "__main__":

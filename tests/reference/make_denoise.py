@@ -35,18 +35,18 @@ numbers its tolerance is derived from (see tests/integration/denoise.rs).
     python tests/reference/make_denoise.py --check   # regenerate in a temporary folder, compare
 """
 
-import argparse
 import json
 import pathlib
 import sys
-import tempfile
-import tomllib
 
 import cv2
 import numpy as np
+
 import skimage
 import skimage.data
 from skimage.restoration import denoise_nl_means
+
+import fixture_check
 
 HERE = pathlib.Path(__file__).resolve().parent
 FIXTURES = HERE / "fixtures" / "denoise"
@@ -309,72 +309,21 @@ MEASURED_KEYS = ("reference_vs_formula", "emulation_error", "psnr_noisy", "psnr_
                  "change_exact_exp", "change_no_cutoff", "change_symmetric_box")
 
 
+
 def check():
-    problems = []
-    with tempfile.TemporaryDirectory() as tmp:
-        fresh_dir = pathlib.Path(tmp)
-        fresh = generate(fresh_dir)
-        try:
-            committed = tomllib.loads((FIXTURES / "manifest.toml").read_text())
-        except FileNotFoundError:
-            print(f"no committed manifest in {FIXTURES}", file=sys.stderr)
-            return 1
-        for key in VERSION_KEYS:
-            if committed.get(key) != fresh[key]:
-                print(f"note: fixtures made with {key} {committed.get(key)}, checking with {fresh[key]}",
-                      file=sys.stderr)
-
-        def strip(m):
-            cases = [{k: v for k, v in c.items() if k not in MEASURED_KEYS} for c in m["case"]]
-            return {k: v for k, v in m.items() if k not in VERSION_KEYS and k != "case"}, cases
-
-        if strip(committed) != strip(tomllib.loads((fresh_dir / "manifest.toml").read_text())):
-            problems.append("manifest.toml: the list of cases or their parameters differ")
-        for old, new in zip(committed["case"], fresh["case"]):
-            for key in MEASURED_KEYS:
-                if key in new and abs(old.get(key, np.inf) - new[key]) > 1e-4 * max(1.0, abs(new[key])):
-                    problems.append(f"{new['id']}: {key} {old.get(key)} -> {new[key]}")
-        fresh_files = {p.name for p in fresh_dir.glob("*.npy")}
-        old_files = {p.name for p in FIXTURES.glob("*.npy")}
-        problems += [f"{n}: committed but no longer generated" for n in sorted(old_files - fresh_files)]
-        problems += [f"{n}: generated but not committed" for n in sorted(fresh_files - old_files)]
-        for name in sorted(fresh_files & old_files):
-            a = np.load(FIXTURES / name, allow_pickle=False)
-            b = np.load(fresh_dir / name, allow_pickle=False)
-            if a.dtype != np.dtype("<f4") or a.shape != b.shape:
-                problems.append(f"{name}: committed {a.dtype} {a.shape}, generated {b.dtype} {b.shape}")
-                continue
-            if name.startswith("input-"):
-                if not np.array_equal(a, b):
-                    problems.append(f"{name}: input differs from a fresh draw")
-                continue
-            diff = float(np.max(np.abs(a.astype(np.float64) - b.astype(np.float64))))
-            if not diff <= CHECK_TOLERANCE:
-                problems.append(f"{name}: differs by {diff:.3e} (tolerance {CHECK_TOLERANCE:g})")
-    if problems:
-        print(f"{len(problems)} mismatch(es) against {FIXTURES}:", file=sys.stderr)
-        for p in problems:
-            print(f"  {p}", file=sys.stderr)
-        return 1
-    print(f"denoise fixtures match: {len(fresh['case'])} cases")
-    return 0
+    return fixture_check.check(
+        FIXTURES,
+        generate,
+        label="denoise",
+        version_keys=VERSION_KEYS,
+        is_input=lambda name, m: name.startswith("input-"),
+        compare=fixture_check.max_difference(CHECK_TOLERANCE),
+        measured_keys=MEASURED_KEYS,
+    )
 
 
 def main():
-    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    parser.add_argument("--check", action="store_true", help="regenerate in a temporary folder and compare")
-    if parser.parse_args().check:
-        return check()
-    for old in FIXTURES.glob("*.npy"):
-        old.unlink()
-    manifest = generate(FIXTURES)
-    size = sum(p.stat().st_size for p in FIXTURES.iterdir())
-    print(f"wrote {len(manifest['case'])} cases to {FIXTURES} ({size / 1024:.0f} KiB)")
-    for c in manifest["case"]:
-        extra = {k: c[k] for k in MEASURED_KEYS if k in c}
-        if extra:
-            print(f"  {c['id']}: " + ", ".join(f"{k} {v:.3g}" for k, v in extra.items()))
-    return 0
+    return fixture_check.main(__doc__, FIXTURES, generate, check)
 
 
 if __name__ == "__main__":

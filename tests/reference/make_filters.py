@@ -31,20 +31,20 @@ ones, sum |K| and the tap and pass counts the Rust test derives its tolerance fr
     python tests/reference/make_filters.py --check   # regenerate in a temporary folder, compare
 """
 
-import argparse
 import json
 import pathlib
 import sys
-import tempfile
-import tomllib
 
 import cv2
 import numpy as np
+
 import scipy
 import scipy.ndimage as ndi
 import skimage
 import skimage.data
 import skimage.filters
+
+import fixture_check
 
 HERE = pathlib.Path(__file__).resolve().parent
 FIXTURES = HERE / "fixtures" / "filters"
@@ -262,61 +262,20 @@ def generate(folder):
 VERSION_KEYS = ("numpy_version", "scipy_version", "opencv_version", "skimage_version")
 
 
+
 def check():
-    problems = []
-    with tempfile.TemporaryDirectory() as tmp:
-        fresh_dir = pathlib.Path(tmp)
-        fresh = generate(fresh_dir)
-        try:
-            committed = tomllib.loads((FIXTURES / "manifest.toml").read_text())
-        except FileNotFoundError:
-            print(f"no committed manifest in {FIXTURES}", file=sys.stderr)
-            return 1
-        for key in VERSION_KEYS:
-            if committed.get(key) != fresh[key]:
-                print(f"note: fixtures made with {key} {committed.get(key)}, checking with {fresh[key]}",
-                      file=sys.stderr)
-        strip = lambda m: {k: v for k, v in m.items() if k not in VERSION_KEYS}
-        if strip(committed) != strip(tomllib.loads((fresh_dir / "manifest.toml").read_text())):
-            problems.append("manifest.toml: the list of cases or their parameters differ")
-        fresh_files = {p.name for p in fresh_dir.glob("*.npy")}
-        old_files = {p.name for p in FIXTURES.glob("*.npy")}
-        problems += [f"{n}: committed but no longer generated" for n in sorted(old_files - fresh_files)]
-        problems += [f"{n}: generated but not committed" for n in sorted(fresh_files - old_files)]
-        inputs = {c["input"] for c in fresh["case"]}
-        for name in sorted(fresh_files & old_files):
-            a = np.load(FIXTURES / name, allow_pickle=False)
-            b = np.load(fresh_dir / name, allow_pickle=False)
-            if a.dtype != np.dtype("<f4") or a.shape != b.shape:
-                problems.append(f"{name}: committed {a.dtype} {a.shape}, generated {b.dtype} {b.shape}")
-                continue
-            if name in inputs:
-                if not np.array_equal(a, b):
-                    problems.append(f"{name}: input differs from a fresh draw")
-                continue
-            diff = float(np.max(np.abs(a.astype(np.float64) - b.astype(np.float64))))
-            if not diff <= CHECK_TOLERANCE:
-                problems.append(f"{name}: differs by {diff:.3e} (tolerance {CHECK_TOLERANCE:g})")
-    if problems:
-        print(f"{len(problems)} mismatch(es) against {FIXTURES}:", file=sys.stderr)
-        for p in problems:
-            print(f"  {p}", file=sys.stderr)
-        return 1
-    print(f"filter fixtures match: {len(fresh['case'])} cases")
-    return 0
+    return fixture_check.check(
+        FIXTURES,
+        generate,
+        label="filter",
+        version_keys=VERSION_KEYS,
+        is_input=lambda name, m: name in {c["input"] for c in m["case"]},
+        compare=fixture_check.max_difference(CHECK_TOLERANCE),
+    )
 
 
 def main():
-    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    parser.add_argument("--check", action="store_true", help="regenerate in a temporary folder and compare")
-    if parser.parse_args().check:
-        return check()
-    for old in FIXTURES.glob("*.npy"):
-        old.unlink()
-    manifest = generate(FIXTURES)
-    size = sum(p.stat().st_size for p in FIXTURES.iterdir())
-    print(f"wrote {len(manifest['case'])} cases to {FIXTURES} ({size / 1024:.0f} KiB)")
-    return 0
+    return fixture_check.main(__doc__, FIXTURES, generate, check)
 
 
 if __name__ == "__main__":

@@ -3,7 +3,8 @@
 //! smoothing and the gradient are run by the filter engines; this module owns
 //! the thinning, the threshold choice and the linking flood.
 
-use super::{ON_NAMES, edge_planes};
+use super::gradient::{GradientRows, magnitude};
+use super::{ON_NAMES, SOBEL_SMOOTH, edge_planes};
 use crate::error::{Error, ParamError};
 use crate::ops::filter::{correlate_separable, gaussian_kernel};
 use crate::ops::params::{self, Kind, OpSpec, ParamSpec};
@@ -144,7 +145,7 @@ impl Canny {
         let (thin, found) = match self.thresholds {
             Thresholds::Magnitude { low, high } => (suppress(s, self.border, low), Found { low, high }),
             Thresholds::Quantile { low, high } => {
-                let (low, high) = quantiles(magnitude(s, self.border).as_slice(), low, high);
+                let (low, high) = quantiles(magnitude(s, self.border, SOBEL_SMOOTH).as_slice(), low, high);
                 (suppress(s, self.border, low), Found { low, high })
             }
             Thresholds::Auto => {
@@ -157,77 +158,6 @@ impl Canny {
         };
         (hysteresis(thin, found.low, found.high), found)
     }
-}
-
-/// One row of the Sobel gradient of `s` and its magnitude, the same sums in
-/// the same order as `correlate_separable` with the Sobel kernels (so the
-/// results are bit-identical): the vertical passes `v = 2·b + (a + c)` and
-/// `d = −a + 0·b + c` over rows y − 1, y, y + 1, padded by one sample under
-/// `border`, then `gx = −v[x−1] + 0·v[x] + v[x+1]`, `gy = 2·d[x] + (d[x−1] + d[x+1])`.
-struct GradientRows<'a> {
-    s: &'a Plane,
-    border: Border,
-    const_row: Vec<f32>,
-    v: Vec<f32>,
-    d: Vec<f32>,
-    v_pad: Vec<f32>,
-    d_pad: Vec<f32>,
-}
-
-impl<'a> GradientRows<'a> {
-    fn new(s: &'a Plane, border: Border) -> GradientRows<'a> {
-        let w = s.width();
-        GradientRows {
-            s,
-            border,
-            const_row: vec![border.constant_value(); w],
-            v: vec![0.0; w],
-            d: vec![0.0; w],
-            v_pad: vec![0.0; w + 2],
-            d_pad: vec![0.0; w + 2],
-        }
-    }
-
-    /// Writes row `y`'s gx, gy and magnitude.
-    fn row(&mut self, y: usize, gx: &mut [f32], gy: &mut [f32], mag: &mut [f32]) {
-        let y = y as isize;
-        let get = |dy: isize| tile::source_row(self.s, y + dy, self.border).unwrap_or(&self.const_row);
-        let (a, b, c) = (get(-1), get(0), get(1));
-        for (((v, d), (&a, &b)), &c) in self.v.iter_mut().zip(self.d.iter_mut()).zip(a.iter().zip(b)).zip(c) {
-            *v = 2.0 * b + (a + c);
-            *d = -a + 0.0 * b + c;
-        }
-        // The horizontal halo under a constant rule is the fill times the
-        // vertical taps' sum: 4 for the smoothing taps, 0 for the derivative.
-        let (vb, db) = match self.border {
-            Border::Constant(f) => (Border::Constant(f * 4.0), Border::Constant(f * 0.0)),
-            b => (b, b),
-        };
-        tile::pad_row(&self.v, 1, vb, &mut self.v_pad);
-        tile::pad_row(&self.d, 1, db, &mut self.d_pad);
-        let (vp, dp) = (&self.v_pad, &self.d_pad);
-        for (x, ((gx, gy), m)) in gx.iter_mut().zip(gy.iter_mut()).zip(mag.iter_mut()).enumerate() {
-            let h = -vp[x] + 0.0 * vp[x + 1] + vp[x + 2];
-            let v = 2.0 * dp[x + 1] + (dp[x] + dp[x + 2]);
-            *gx = h;
-            *gy = v;
-            *m = (h * h + v * v).sqrt();
-        }
-    }
-}
-
-/// The Sobel gradient magnitude `√(gx² + gy²)` of `s`, by bands.
-fn magnitude(s: &Plane, border: Border) -> Plane {
-    let w = s.width();
-    let mut out = Plane::zeros(w, s.height()).unwrap_or_else(|_| unreachable!("same size as a valid plane"));
-    tile::for_each_band(&mut out, tile::band_rows(w, 1), |y0, band| {
-        let mut rows = GradientRows::new(s, border);
-        let (mut gx, mut gy) = (vec![0.0; w], vec![0.0; w]);
-        for (i, m) in band.chunks_exact_mut(w).enumerate() {
-            rows.row(y0 + i, &mut gx, &mut gy, m);
-        }
-    });
-    out
 }
 
 /// Non-maximum suppression of the Sobel gradient of `s`: the magnitude where
@@ -243,7 +173,7 @@ fn suppress(s: &Plane, border: Border, low: f32) -> Plane {
         return out;
     }
     tile::for_each_band(&mut out, tile::band_rows(w, 1), |y0, band| {
-        let mut rows = GradientRows::new(s, border);
+        let mut rows = GradientRows::new(s, border, SOBEL_SMOOTH);
         // ring[k] holds row y with y % 3 == k: gx, gy, magnitude
         let mut ring: [[Vec<f32>; 3]; 3] = std::array::from_fn(|_| std::array::from_fn(|_| vec![0.0; w]));
         let mut fill = |y: usize, ring: &mut [[Vec<f32>; 3]; 3]| {
@@ -466,7 +396,7 @@ mod tests {
     //! (refused), a plateau of equal magnitudes across a symmetric step (both
     //! columns survive: the comparison is ≤). Reference for the thinning: a
     //! naive bilinear sample of the magnitude one step along the gradient.
-    use super::super::{DERIVATIVE, SOBEL_SMOOTH};
+    use super::super::DERIVATIVE;
     use super::*;
     use crate::raster::{Encoding, Layout};
 
@@ -534,7 +464,7 @@ mod tests {
         let s = correlate_separable(&p, &gaussian_kernel(0.8, 3), &gaussian_kernel(0.8, 3), Border::Reflect);
         let gx = correlate_separable(&s, &DERIVATIVE, &SOBEL_SMOOTH, Border::Reflect);
         let gy = correlate_separable(&s, &SOBEL_SMOOTH, &DERIVATIVE, Border::Reflect);
-        let mag = magnitude(&s, Border::Reflect);
+        let mag = magnitude(&s, Border::Reflect, SOBEL_SMOOTH);
         let thin = suppress(&s, Border::Reflect, 0.0);
         let m = |x: f64, y: f64| {
             // bilinear interpolation of the magnitude (f64)
@@ -588,7 +518,7 @@ mod tests {
             for b in borders {
                 let gx = correlate_separable(&p, &DERIVATIVE, &SOBEL_SMOOTH, b);
                 let gy = correlate_separable(&p, &SOBEL_SMOOTH, &DERIVATIVE, b);
-                let mut rows = GradientRows::new(&p, b);
+                let mut rows = GradientRows::new(&p, b, SOBEL_SMOOTH);
                 let (mut rx, mut ry, mut rm) = (vec![0.0; w], vec![0.0; w], vec![0.0; w]);
                 for y in 0..h {
                     rows.row(y, &mut rx, &mut ry, &mut rm);
@@ -597,7 +527,7 @@ mod tests {
                     let want: Vec<f32> = rx.iter().zip(&ry).map(|(x, y)| (x * x + y * y).sqrt()).collect();
                     assert_eq!(rm, want);
                 }
-                assert_eq!(magnitude(&p, b).row(h - 1), &rm[..]);
+                assert_eq!(magnitude(&p, b, SOBEL_SMOOTH).row(h - 1), &rm[..]);
             }
         }
     }

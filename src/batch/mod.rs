@@ -382,11 +382,14 @@ fn run_job(
         Ok(j) => j,
         Err(e) => return Status::Failed(e.to_string()),
     };
-    let page_name = |page: usize| -> Result<PathBuf, Error> {
-        let names = file.pages.as_ref().ok_or_else(|| Error::Internal("no page names".into()))?;
-        names.path(page).map_err(Error::Recipe)
+    let page_name;
+    let job = match &file.pages {
+        Some(names) => {
+            page_name = |page: usize| names.path(page).map_err(Error::Recipe);
+            job.one_file_per_page(&page_name)
+        }
+        None => job,
     };
-    let job = if file.pages.is_some() { job.one_file_per_page(&page_name) } else { job };
     match job.run_unless(&|| control.cancel.load(Ordering::Relaxed)) {
         Ok(summary) => {
             if batch.sidecar

@@ -117,15 +117,14 @@ pub fn filter_planes_indexed(
             multiply_in_place(p, &alpha[0]);
         }
     }
-    let mut filtered =
-        raster.planes().iter().enumerate().map(|(i, p)| filter(i, p)).collect::<Result<Vec<_>, _>>()?;
+    let mut filtered = raster.map_planes(filter)?;
     if layout.has_alpha() {
-        let (colour_planes, alpha) = filtered.split_at_mut(colour);
+        let (colour_planes, alpha) = filtered.planes_mut().split_at_mut(colour);
         for p in colour_planes.iter_mut() {
             divide_in_place(p, &alpha[0]);
         }
     }
-    raster.with_planes(filtered, layout)
+    Ok(filtered)
 }
 
 fn multiply_in_place(p: &mut Plane, alpha: &Plane) {

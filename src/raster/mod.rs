@@ -2,6 +2,7 @@
 //! encoding) and the metadata carried from the source. No codec or operator logic.
 
 mod plane;
+mod recycle;
 pub mod transform;
 
 pub use plane::Plane;
@@ -325,6 +326,22 @@ impl Raster {
         out.levels = self.levels;
         out.model = if layout.colour_channels() == 3 { self.model } else { ColourModel::Rgb };
         Ok(out)
+    }
+
+    /// Replaces each plane by `f(index, plane)`, one plane at a time, each
+    /// source plane dropped as soon as its result exists (so the next result
+    /// can reuse its buffer); keeps layout, encoding and metadata.
+    pub fn map_planes(
+        mut self,
+        mut f: impl FnMut(usize, &Plane) -> Result<Plane, Error>,
+    ) -> Result<Raster, Error> {
+        let sources = std::mem::take(&mut self.planes);
+        let mut out = Vec::with_capacity(sources.len());
+        for (i, p) in sources.into_iter().enumerate() {
+            out.push(f(i, &p)?);
+        }
+        let layout = self.layout;
+        self.with_planes(out, layout)
     }
 
     /// Consumes the raster and returns its planes.

@@ -1,5 +1,8 @@
 //! One channel of an image: `width × height` samples of `f32`, row-major, no padding.
 
+use rayon::prelude::*;
+
+use super::recycle;
 use crate::error::Error;
 
 /// One channel: `width × height` samples, stored row by row with no padding.
@@ -17,7 +20,7 @@ impl Plane {
     /// A plane filled with `value`.
     pub fn filled(width: usize, height: usize, value: f32) -> Result<Self, Error> {
         let len = checked_len(width, height)?;
-        Ok(Plane { width, height, data: vec![value; len] })
+        Ok(Plane { width, height, data: recycle::filled(len, value) })
     }
 
     /// A plane of zeros.
@@ -87,9 +90,22 @@ impl Plane {
         &mut self.data
     }
 
+    /// True when no sample is NaN or infinite (checked in parallel).
+    pub fn all_finite(&self) -> bool {
+        self.data.par_chunks(1 << 16).all(|c| c.iter().all(|v| v.is_finite()))
+    }
+
     /// Consumes the plane and returns its samples.
-    pub fn into_vec(self) -> Vec<f32> {
-        self.data
+    pub fn into_vec(mut self) -> Vec<f32> {
+        std::mem::take(&mut self.data)
+    }
+}
+
+/// A dropped plane's buffer is kept for the next plane of its size (see
+/// [`recycle`]): its pages are already mapped, so no page faults.
+impl Drop for Plane {
+    fn drop(&mut self) {
+        recycle::give(std::mem::take(&mut self.data));
     }
 }
 

@@ -2,6 +2,7 @@
 //! arithmetic lives here; alpha and domain handling are `ops::filter_planes`'.
 
 use super::engine::correlate_separable;
+use super::rows;
 use crate::error::{Error, ParamError};
 use crate::ops::params::{self, Kind, OpSpec, ParamSpec};
 use crate::ops::{Domain, Operator, filter_planes};
@@ -67,7 +68,7 @@ impl Operator for BoxMean {
 
 /// The mean of `src` over a `(2r+1)²` window under `border`.
 pub fn box_mean(src: &Plane, r: usize, border: Border) -> Plane {
-    if !src.as_slice().iter().all(|v| v.is_finite()) {
+    if !src.all_finite() {
         let k = vec![1.0 / (2 * r + 1) as f32; 2 * r + 1];
         return correlate_separable(src, &k, &k, border);
     }
@@ -96,6 +97,7 @@ fn running_box(src: &Plane, r: usize, border: Border) -> Plane {
             }
         }
         let mut padded = vec![0.0f64; w + 2 * r];
+        let mut sums = vec![0.0f64; w];
         for (i, out_row) in band.chunks_exact_mut(w).enumerate() {
             let y = y0 + i as isize;
             if i > 0 {
@@ -109,11 +111,9 @@ fn running_box(src: &Plane, r: usize, border: Border) -> Plane {
                 padded[i] = left[i].map_or(fill, |j| col[j]);
                 padded[r + w + i] = right[i].map_or(fill, |j| col[j]);
             }
-            let mut s: f64 = padded[..2 * r + 1].iter().sum();
-            out_row[0] = (s * inv) as f32;
-            for x in 1..w {
-                s += padded[x + 2 * r] - padded[x - 1];
-                out_row[x] = (s * inv) as f32;
+            rows::running_sums(&padded, 2 * r + 1, &mut sums);
+            for (o, &s) in out_row.iter_mut().zip(&sums) {
+                *o = (s * inv) as f32;
             }
         }
     });

@@ -2,6 +2,7 @@
 //! extended box filters run by running sums. Only the cascade lives here; the
 //! choice between it and the exact kernel is `Gauss`'s.
 
+use super::rows;
 use crate::raster::Plane;
 use crate::tile::{self, Border};
 
@@ -68,16 +69,13 @@ pub fn kernel(b: ExtendedBox) -> Vec<f32> {
 }
 
 /// One pass in "valid" mode along a line: `out[i] = Σ taps · inp[i .. i + 2r + 3]`,
-/// `out.len() = inp.len() − 2r − 2`, by a running sum.
-fn pass_line(inp: &[f64], b: ExtendedBox, out: &mut [f64]) {
+/// `out.len() = inp.len() − 2r − 2`, by running sums (into `sums`, as long as `out`).
+fn pass_line(inp: &[f64], b: ExtendedBox, sums: &mut [f64], out: &mut [f64]) {
     let r = b.r;
     let inv = 1.0 / (2.0 * r as f64 + 1.0 + 2.0 * b.alpha);
-    let mut s: f64 = inp[1..2 * r + 2].iter().sum();
-    for (i, o) in out.iter_mut().enumerate() {
-        if i > 0 {
-            s += inp[i + 2 * r + 1] - inp[i];
-        }
-        *o = (s + b.alpha * (inp[i] + inp[i + 2 * r + 2])) * inv;
+    rows::running_sums(&inp[1..], 2 * r + 1, sums);
+    for (((o, &s), &lo), &hi) in out.iter_mut().zip(&*sums).zip(inp).zip(&inp[2 * r + 2..]) {
+        *o = (s + b.alpha * (lo + hi)) * inv;
     }
 }
 
@@ -134,6 +132,7 @@ pub fn cascade_gauss(src: &Plane, b: ExtendedBox, border: Border) -> Plane {
         let fill = f64::from(border.constant_value());
         let mut line = vec![0.0f64; w + 2 * halo];
         let mut tmp = vec![0.0f64; w + 2 * halo];
+        let mut sums = vec![0.0f64; w + 2 * halo];
         for (i, out_row) in band.chunks_exact_mut(w).enumerate() {
             let row = &cur[i * w..(i + 1) * w];
             line[halo..halo + w].copy_from_slice(row);
@@ -144,7 +143,7 @@ pub fn cascade_gauss(src: &Plane, b: ExtendedBox, border: Border) -> Plane {
             let mut len = w + 2 * halo;
             for _ in 0..PASSES {
                 let n = len - 2 * (b.r + 1);
-                pass_line(&line[..len], b, &mut tmp[..n]);
+                pass_line(&line[..len], b, &mut sums[..n], &mut tmp[..n]);
                 std::mem::swap(&mut line, &mut tmp);
                 len = n;
             }

@@ -135,7 +135,7 @@ impl Operator for Gauss {
     fn apply(&self, raster: Raster) -> Result<Raster, Error> {
         filter_planes(raster, |p| {
             Ok(match self.fast {
-                Some(b) if p.as_slice().iter().all(|v| v.is_finite()) => cascade_gauss(p, b, self.border),
+                Some(b) if p.all_finite() => cascade_gauss(p, b, self.border),
                 Some(b) => {
                     // Running sums would carry a NaN past its window: apply the
                     // cascade's own kernel directly instead.

@@ -2,7 +2,7 @@
 //! encoding) and the metadata carried from the source. No codec or operator logic.
 
 mod plane;
-mod recycle;
+pub(crate) mod recycle;
 pub mod transform;
 
 pub use plane::Plane;
@@ -336,6 +336,7 @@ impl Raster {
         mut f: impl FnMut(usize, &Plane) -> Result<Plane, Error>,
     ) -> Result<Raster, Error> {
         let sources = std::mem::take(&mut self.planes);
+        let _reuse = recycle::Scope::open();
         let mut out = Vec::with_capacity(sources.len());
         for (i, p) in sources.into_iter().enumerate() {
             out.push(f(i, &p)?);

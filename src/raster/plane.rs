@@ -101,8 +101,9 @@ impl Plane {
     }
 }
 
-/// A dropped plane's buffer is kept for the next plane of its size (see
-/// [`recycle`]): its pages are already mapped, so no page faults.
+/// While a step filters plane by plane, a dropped plane's buffer is kept for
+/// the next plane of its size (see [`recycle`]): its pages are already
+/// mapped, so no page faults.
 impl Drop for Plane {
     fn drop(&mut self) {
         recycle::give(std::mem::take(&mut self.data));

@@ -24,7 +24,8 @@ row sums    R(x, y) = R(x-1, y) + S(x+r, y) - S(x-r-1, y)         (running, f64)
 out(x, y) = R(x, y) / (2r+1)²
 ```
 
-The running sums are kept in f64 and restarted for every band of rows, so
+The running sums are kept in f64 and restarted for every band of rows (the
+row sums also at four points of each row, which run side by side), so
 rounding does not build up; each output is rounded to f32 once.
 A plane holding NaN or infinity is filtered by a direct separable sum instead
 (a running sum would carry the NaN past its window); a non-finite sample then

@@ -10,7 +10,7 @@ use clap::Args;
 use clap::builder::PossibleValuesParser;
 
 use super::{Exit, report};
-use indicatif::{ProgressBar, ProgressStyle};
+use indicatif::{ProgressBar, ProgressState, ProgressStyle};
 use pumice::batch::report::{RunHeader, Tally};
 use pumice::batch::{
     self, Action, BatchOptions, Control, Existing, FileOutcome, OutputSpec, Plan, PlannedFile, Shard, Status,
@@ -397,8 +397,12 @@ fn progress_bar(len: u64, quiet: bool) -> ProgressBar {
     }
     // The default target (stderr) hides itself when stderr is not a terminal.
     let bar = ProgressBar::new(len);
-    if let Ok(style) = ProgressStyle::with_template("{bar:32} {pos}/{len} files  {per_sec:.1}  eta {eta}") {
-        bar.set_style(style);
+    // `{rate}`: files per second with one decimal (indicatif's own `per_sec`
+    // prints four, and a `.1` in a template is a colour, not a precision).
+    if let Ok(style) = ProgressStyle::with_template("{bar:32} {pos}/{len} files  {rate}  eta {eta}") {
+        bar.set_style(style.with_key("rate", |state: &ProgressState, out: &mut dyn std::fmt::Write| {
+            let _ = write!(out, "{:.1} files/s", state.per_sec());
+        }));
     }
     bar
 }

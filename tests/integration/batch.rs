@@ -333,3 +333,36 @@ fn an_interrupted_batch_stops_promptly_and_still_writes_its_report() {
     assert_eq!(r["files"].as_array().unwrap().len(), 120, "the report lists every planned file");
     assert!(r["summary"]["not_run"].as_u64().unwrap() > 0);
 }
+
+/// The progress bar appears only on a terminal: under a pseudo-terminal
+/// (Python's `pty.spawn`, the standard library's, as the terminal) stderr
+/// shows the bar with its count and rate and the summary; through a pipe,
+/// and with `--quiet` on the terminal, there is no bar.
+#[test]
+fn progress_bar_is_drawn_on_a_terminal_only() {
+    let s = Scratch::new();
+    for i in 0..40 {
+        write(&s.path(&format!("in/f{i:02}.png")), &png_bytes(48, 32, i));
+    }
+    let on_terminal = |extra: &[&str], out: &str| {
+        let mut cmd = Command::new("python3");
+        cmd.args(["-c", "import pty, sys; pty.spawn(sys.argv[1:])", env!("CARGO_BIN_EXE_pumice"), "run"])
+            .arg(s.path("in"))
+            .arg("-o")
+            .arg(s.path(out))
+            .args(["-s", "gauss:2"])
+            .args(extra)
+            .stdin(Stdio::null());
+        let output = cmd.output().expect("run python3 (needed by this test for a pseudo-terminal)");
+        assert!(output.status.success(), "{output:?}");
+        String::from_utf8_lossy(&output.stdout).into_owned()
+    };
+    let shown = on_terminal(&[], "out/");
+    assert!(shown.contains("/40 files") && shown.contains(" files/s"), "no bar on a terminal:\n{shown}");
+    assert!(shown.contains("40 done, 0 skipped, 0 failed"), "no summary:\n{shown}");
+    assert_eq!(tree(&s.path("out")).len(), 40);
+    let quiet = on_terminal(&["--quiet"], "quiet/");
+    assert!(!quiet.contains("files/s") && !quiet.contains("done,"), "--quiet still draws:\n{quiet}");
+    let piped = pumice(&args(&[&"run", &s.path("in"), &"-o", &s.path("piped/"), &"-s", &"gauss:2"])).ok();
+    assert!(!piped.stderr().contains("files/s") && piped.stderr().contains("40 done"), "{}", piped.stderr());
+}

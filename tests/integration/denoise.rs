@@ -244,3 +244,64 @@ fn ops_shows_the_formula_and_source() {
         assert!(out.contains(part), "`pumice ops nlmeans` lacks {part}:\n{out}");
     }
 }
+
+/// A 16-bit source stays 16-bit through both operators on the command line:
+/// the written PNG has 16-bit samples, thousands of distinct codes (an 8-bit
+/// path would leave at most 256, all multiples of 257), and every code is
+/// within 1 of the same step run in-process on the decoded planes and rounded
+/// to 16 bits (1 code: the encoder's round-half-up against `f32::round`).
+#[test]
+fn sixteen_bit_sources_keep_sixteen_bits() {
+    use pumice::pipeline::{DomainPolicy, Pipeline};
+    let s = crate::harness::Scratch::new();
+    let (w, h) = (96u32, 64u32);
+    let mut state = 0x9E37_79B9u32;
+    let codes: Vec<u16> = (0..w * h)
+        .map(|i| {
+            state ^= state << 13;
+            state ^= state >> 17;
+            state ^= state << 5;
+            let ramp = 4000.0 + 50_000.0 * f64::from(i % w) / f64::from(w);
+            (ramp + f64::from(state % 3001) - 1500.0) as u16
+        })
+        .collect();
+    let mut bytes = Vec::new();
+    {
+        let mut enc = png::Encoder::new(&mut bytes, w, h);
+        enc.set_color(png::ColorType::Grayscale);
+        enc.set_depth(png::BitDepth::Sixteen);
+        let data: Vec<u8> = codes.iter().flat_map(|c| c.to_be_bytes()).collect();
+        enc.write_header().unwrap().write_image_data(&data).unwrap();
+    }
+    let input = s.write("in.png", &bytes);
+    for step in ["bilateral:2,range=0.05", "nlmeans:0.03,patch=5,search=11"] {
+        let out = s.path("out.png");
+        crate::harness::pumice(&[
+            "run".as_ref(),
+            input.as_os_str(),
+            "-o".as_ref(),
+            out.as_os_str(),
+            "--overwrite".as_ref(),
+            "-s".as_ref(),
+            step.as_ref(),
+        ])
+        .ok();
+        let decoder = png::Decoder::new(std::io::Cursor::new(std::fs::read(&out).unwrap()));
+        let mut reader = decoder.read_info().unwrap();
+        let mut buf = vec![0u8; reader.output_buffer_size().unwrap()];
+        let info = reader.next_frame(&mut buf).unwrap();
+        assert_eq!(info.bit_depth, png::BitDepth::Sixteen, "{step}: output depth");
+        let got: Vec<u16> =
+            buf[..info.buffer_size()].chunks_exact(2).map(|b| u16::from_be_bytes([b[0], b[1]])).collect();
+        let distinct: std::collections::BTreeSet<u16> = got.iter().copied().collect();
+        assert!(distinct.len() > 1000, "{step}: only {} distinct codes", distinct.len());
+        assert!(got.iter().any(|c| c % 257 != 0), "{step}: every code is an 8-bit one");
+        let raster = crate::harness::read_image(&input);
+        let want = Pipeline::parse(&[step]).unwrap().run(raster, DomainPolicy::Auto).unwrap();
+        for (i, (&g, &v)) in got.iter().zip(want.planes()[0].as_slice()).enumerate() {
+            let e = (v.clamp(0.0, 1.0) * 65535.0).round() as i32;
+            assert!((i32::from(g) - e).abs() <= 1, "{step}: sample {i}: wrote {g}, in-process {e}");
+        }
+        assert_ne!(got, codes, "{step}: the step changed nothing");
+    }
+}

@@ -4,7 +4,6 @@
 
 use multiversion::multiversion;
 
-use super::rows;
 use crate::raster::Plane;
 use crate::tile::{self, Border};
 
@@ -70,15 +69,34 @@ pub fn kernel(b: ExtendedBox) -> Vec<f32> {
     kernel64(b).iter().map(|&v| v as f32).collect()
 }
 
-/// One pass in "valid" mode along a line: `out[i] = Σ taps · inp[i .. i + 2r + 3]`,
-/// `out.len() = inp.len() − 2r − 2`, by running sums (into `sums`, as long as `out`).
+/// Rows filtered side by side by the horizontal passes.
+const LANES: usize = 8;
+
+/// One pass in "valid" mode along LANES lines at once: `out[i] = Σ taps ·
+/// inp[i .. i + 2r + 3]` lane by lane, `out.len() = inp.len() − 2r − 2`, by a
+/// running sum in f64 (the sample entering the window added, the one leaving
+/// it subtracted).
 #[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-fn pass_line(inp: &[f64], b: ExtendedBox, sums: &mut [f64], out: &mut [f64]) {
+fn pass_lanes(inp: &[[f64; LANES]], b: ExtendedBox, out: &mut [[f64; LANES]]) {
     let r = b.r;
     let inv = 1.0 / (2.0 * r as f64 + 1.0 + 2.0 * b.alpha);
-    rows::running_sums(&inp[1..], 2 * r + 1, sums);
-    for (((o, &s), &lo), &hi) in out.iter_mut().zip(&*sums).zip(inp).zip(&inp[2 * r + 2..]) {
-        *o = (s + b.alpha * (lo + hi)) * inv;
+    let mut s = [0.0f64; LANES];
+    for e in &inp[1..2 * r + 2] {
+        for l in 0..LANES {
+            s[l] += e[l];
+        }
+    }
+    for (i, o) in out.iter_mut().enumerate() {
+        if i > 0 {
+            let (add, sub) = (&inp[i + 2 * r + 1], &inp[i]);
+            for l in 0..LANES {
+                s[l] += add[l] - sub[l];
+            }
+        }
+        let (lo, hi) = (&inp[i], &inp[i + 2 * r + 2]);
+        for l in 0..LANES {
+            o[l] = (s[l] + b.alpha * (lo[l] + hi[l])) * inv;
+        }
     }
 }
 
@@ -136,7 +154,12 @@ pub fn cascade_gauss(src: &Plane, b: ExtendedBox, border: Border) -> Plane {
         let mut cur = vec![0.0f64; m0 * strip];
         let mut next = vec![0.0f64; m0 * strip];
         let mut acc = vec![0.0f64; strip];
-        let mut vert = vec![0.0f64; nb * w];
+        // The vertical results go straight into the layout of the horizontal
+        // passes: LANES rows side by side (lane l of element x of group g is
+        // row g·LANES + l, column x − halo), so each step of a running sum
+        // there is one vector operation for all of them.
+        let wp = w + 2 * halo;
+        let mut lanes = vec![[0.0f64; LANES]; nb.div_ceil(LANES) * wp];
         for x0 in (0..w).step_by(strip) {
             let sw = strip.min(w - x0);
             for k in 0..m0 {
@@ -153,32 +176,35 @@ pub fn cascade_gauss(src: &Plane, b: ExtendedBox, border: Border) -> Plane {
                 m -= 2 * (b.r + 1);
             }
             for i in 0..nb {
-                vert[i * w + x0..][..sw].copy_from_slice(&cur[i * sw..(i + 1) * sw]);
+                let (g, l) = (i / LANES, i % LANES);
+                for (e, &v) in lanes[g * wp + halo + x0..][..sw].iter_mut().zip(&cur[i * sw..(i + 1) * sw]) {
+                    e[l] = v;
+                }
             }
         }
-        let cur = vert;
-        // Horizontal, per row: pad by the rule (a constant stays itself: the
-        // kernel sums to 1), then the passes in valid mode.
-        let fill = f64::from(border.constant_value());
-        let mut line = vec![0.0f64; w + 2 * halo];
-        let mut tmp = vec![0.0f64; w + 2 * halo];
-        let mut sums = vec![0.0f64; w + 2 * halo];
-        for (i, out_row) in band.chunks_exact_mut(w).enumerate() {
-            let row = &cur[i * w..(i + 1) * w];
-            line[halo..halo + w].copy_from_slice(row);
+        // Horizontal, a group of LANES rows at a time: pad by the rule (a
+        // constant stays itself: the kernel sums to 1), then the passes in
+        // valid mode.
+        let fill = [f64::from(border.constant_value()); LANES];
+        let mut line = vec![[0.0f64; LANES]; wp];
+        let mut tmp = vec![[0.0f64; LANES]; wp];
+        for (g, group) in lanes.chunks_exact_mut(wp).enumerate() {
             for k in 0..halo {
-                line[k] = left[k].map_or(fill, |j| row[j]);
-                line[halo + w + k] = right[k].map_or(fill, |j| row[j]);
+                group[k] = left[k].map_or(fill, |j| group[halo + j]);
+                group[halo + w + k] = right[k].map_or(fill, |j| group[halo + j]);
             }
-            let mut len = w + 2 * halo;
-            for _ in 0..PASSES {
+            let mut len = wp - 2 * (b.r + 1);
+            pass_lanes(group, b, &mut line[..len]);
+            for _ in 1..PASSES {
                 let n = len - 2 * (b.r + 1);
-                pass_line(&line[..len], b, &mut sums[..n], &mut tmp[..n]);
+                pass_lanes(&line[..len], b, &mut tmp[..n]);
                 std::mem::swap(&mut line, &mut tmp);
                 len = n;
             }
-            for (o, &v) in out_row.iter_mut().zip(&line[..w]) {
-                *o = v as f32;
+            for l in 0..LANES.min(nb - g * LANES) {
+                for (o, e) in band[(g * LANES + l) * w..][..w].iter_mut().zip(&line[..w]) {
+                    *o = e[l] as f32;
+                }
             }
         }
     });

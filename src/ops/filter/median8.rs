@@ -129,14 +129,17 @@ fn columns_of(window: &[(isize, usize)], r: usize) -> Vec<(usize, usize)> {
 #[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
 fn codes_of(src: &[f32], dst: &mut [u8]) -> bool {
     // k = ⌊255·v + ½⌋ is the code when v is on the grid; the bit comparison
-    // then proves it (and refuses −0, NaN and everything off the grid).
-    let mut ok = true;
+    // then proves it (and refuses −0, NaN and everything off the grid). For
+    // k ∈ 0..=255, k + 2²³ is exact and its low mantissa byte is k: a cast that
+    // vectorises (the saturating `as` casts do not).
+    let mut bad = 0u32;
     for (d, &v) in dst.iter_mut().zip(src) {
         let k = (v * 255.0 + 0.5).floor();
-        ok &= (0.0..=255.0).contains(&k) && (k / 255.0).to_bits() == v.to_bits();
-        *d = k as u8;
+        let in_range = (0.0..=255.0).contains(&k);
+        bad |= u32::from(!in_range) | ((k / 255.0).to_bits() ^ v.to_bits());
+        *d = (k + 8_388_608.0).to_bits() as u8;
     }
-    ok
+    bad == 0
 }
 
 #[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]

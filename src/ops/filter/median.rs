@@ -5,6 +5,7 @@
 
 use multiversion::multiversion;
 
+use super::median8;
 use super::network::{Comparator, selection_network};
 use crate::error::{Error, ParamError};
 use crate::ops::params::{self, Kind, OpSpec, ParamSpec};
@@ -86,6 +87,31 @@ impl Median {
     /// The median of one plane. `levels` is the raster's promise that samples
     /// are exact `k / levels`; it is checked before the histogram trusts it.
     pub fn median_plane(&self, p: &Plane, levels: Option<u32>) -> Plane {
+        if levels == Some(255) && self.radius <= 2 {
+            let mut out = p.clone();
+            if self.median_u8_in_place(&mut out, &mut Vec::new()) {
+                return out;
+            }
+        }
+        self.median_plane_f32(p, levels)
+    }
+
+    /// The 8-bit engine, in place: false (and `p` untouched) when it does not
+    /// apply (radius above 2, or a sample or the fill off the 255 grid).
+    fn median_u8_in_place(&self, p: &mut Plane, codes: &mut Vec<u8>) -> bool {
+        self.radius <= 2
+            && median8::median_u8_in_place(
+                p,
+                &self.rows(),
+                self.radius,
+                self.shape == Shape::Disk,
+                self.border,
+                codes,
+            )
+    }
+
+    /// [`Median::median_plane`] without the 8-bit engine.
+    fn median_plane_f32(&self, p: &Plane, levels: Option<u32>) -> Plane {
         let finite = p.as_slice().iter().all(|v| v.is_finite());
         let window = self.rows();
         if finite && self.radius <= 2 {
@@ -116,9 +142,20 @@ impl Operator for Median {
         Domain::Any
     }
 
-    fn apply(&self, raster: Raster) -> Result<Raster, Error> {
-        let levels = if raster.layout().has_alpha() { None } else { raster.levels };
-        filter_planes(raster, |p| Ok(self.median_plane(p, levels)))
+    fn apply(&self, mut raster: Raster) -> Result<Raster, Error> {
+        if raster.layout().has_alpha() {
+            return filter_planes(raster, |p| Ok(self.median_plane(p, None)));
+        }
+        // Without alpha each plane is filtered on its own, so the 8-bit
+        // engine can write into the plane's buffer (no fresh output plane).
+        let levels = raster.levels;
+        let mut codes = Vec::new();
+        for p in raster.planes_mut() {
+            if levels != Some(255) || !self.median_u8_in_place(p, &mut codes) {
+                *p = self.median_plane_f32(p, levels);
+            }
+        }
+        Ok(raster)
     }
 }
 
@@ -417,6 +454,64 @@ mod tests {
                 }
             }
         }
+    }
+
+    #[test]
+    fn the_eight_bit_engine_equals_sorting() {
+        // tiny and odd sizes (the window mostly halo), a row wider than one
+        // piece of lanes, every border rule (the fill on the grid), both shapes
+        let grid = Border::Constant(64.0 / 255.0);
+        for (w, h) in [(1, 1), (1, 9), (9, 1), (2, 3), (5, 4), (31, 17), (1100, 7)] {
+            let p = noise(w, h, 23);
+            let codes = Plane::from_fn(w, h, |x, y| (p.get(x, y) * 255.0).round() / 255.0).unwrap();
+            for b in [Border::Reflect, Border::Mirror, Border::Replicate, Border::Wrap, grid] {
+                for shape in [Shape::Square, Shape::Disk] {
+                    for r in [1, 2] {
+                        let m = Median::new(r, shape, b).unwrap();
+                        let mut got = codes.clone();
+                        assert!(m.median_u8_in_place(&mut got, &mut Vec::new()), "engine refused {w}×{h}");
+                        let want = naive(&codes, &m);
+                        assert!(
+                            got.as_slice()
+                                .iter()
+                                .zip(want.as_slice())
+                                .all(|(a, b)| a.to_bits() == b.to_bits()),
+                            "{w}×{h} r={r} {shape:?} {b:?}"
+                        );
+                    }
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn the_eight_bit_engine_sees_every_code_and_refuses_off_grid_data() {
+        // all 256 codes, in every order the window can hold them (random)
+        let mut state = 0x9E37_79B9_7F4A_7C15u64;
+        let p = Plane::from_fn(257, 203, |_, _| {
+            state ^= state << 13;
+            state ^= state >> 7;
+            state ^= state << 17;
+            f32::from((state >> 56) as u8) / 255.0
+        })
+        .unwrap();
+        for shape in [Shape::Square, Shape::Disk] {
+            let m = Median::new(2, shape, Border::Reflect).unwrap();
+            let mut got = p.clone();
+            assert!(m.median_u8_in_place(&mut got, &mut Vec::new()));
+            assert_eq!(got, naive(&p, &m));
+        }
+        // one sample off the grid, or a fill off the grid: refused, plane untouched
+        let m = Median::new(1, Shape::Square, Border::Reflect).unwrap();
+        let mut off = p.clone();
+        off.row_mut(100)[7] = 0.3;
+        let before = off.clone();
+        assert!(!m.median_u8_in_place(&mut off, &mut Vec::new()));
+        assert_eq!(off, before);
+        assert_eq!(m.median_plane(&off, Some(255)), naive(&off, &m));
+        let m = Median::new(2, Shape::Disk, Border::Constant(0.25)).unwrap();
+        assert!(!m.median_u8_in_place(&mut p.clone(), &mut Vec::new()));
+        assert_eq!(m.median_plane(&p, Some(255)), naive(&p, &m));
     }
 
     #[test]

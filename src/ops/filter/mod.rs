@@ -10,6 +10,7 @@ mod engine;
 pub mod exptable;
 mod fastgauss;
 mod median;
+mod median8;
 pub(crate) mod network;
 mod nlmeans;
 pub(crate) mod rows;

@@ -28,8 +28,13 @@ out(x, y) = the middle value of the sorted in(x + j, y + i), (i, j) ∈ W
 ```
 
 W always holds an odd number of samples, so the median is one of them.
-Engines (all exact, tested against each other): radius 1–2, a comparator network
-pruned to the middle output and run on whole rows; radius ≥ 3 on an untouched
+Engines (all exact, tested against each other): radius 1–2 on an untouched
+8-bit source (every sample and the fill exactly k/255), the codes as bytes:
+each window column sorted once per output row, then a comparator network
+pruned to the middle output and to the comparators that can still exchange
+when the columns arrive sorted (found by the zero–one principle, Knuth, TAOCP
+vol. 3, §5.3.4), run on 32 or 64 codes per instruction; radius 1–2 otherwise, the
+same kind of network on f32 rows; radius ≥ 3 on an untouched
 8- or 16-bit source, a sliding histogram of the integer codes (Huang, Yang &
 Tang, IEEE Trans. ASSP 27(1), 1979: each step right removes one column of the
 window and adds another, and the middle is found by a 256-bin coarse count
@@ -85,7 +90,8 @@ impl Median {
     }
 
     /// The median of one plane. `levels` is the raster's promise that samples
-    /// are exact `k / levels`; it is checked before the histogram trusts it.
+    /// are exact `k / levels`; it is checked before the 8-bit engine or the
+    /// histogram trusts it.
     pub fn median_plane(&self, p: &Plane, levels: Option<u32>) -> Plane {
         if levels == Some(255) && self.radius <= 2 {
             let mut out = p.clone();

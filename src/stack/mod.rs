@@ -25,13 +25,12 @@ use std::fs::File;
 use std::io::{self, BufReader, Read, Seek, SeekFrom, Write};
 use std::path::{Path, PathBuf};
 
-use multiversion::multiversion;
 use rayon::prelude::*;
 
 use crate::error::Error;
 use crate::io::file::{self, Location};
 use crate::io::{DecodeOptions, Format, TiffPages, decode};
-use crate::ops::filter::network::{Comparator, selection_network};
+use crate::ops::filter::network::{Comparator, compare_rows, selection_network};
 use crate::raster::{Layout, Plane, Raster, SampleType};
 
 /// How frames are combined at each pixel.
@@ -543,40 +542,13 @@ impl MedianNetwork {
             for c in &self.comparators {
                 let (lo, hi) = block.split_at_mut(c.b * B);
                 let (a, b) = (&mut lo[c.a * B..c.a * B + len], &mut hi[..len]);
-                match (c.keep_min, c.keep_max) {
-                    (true, true) => min_max_u16(a, b),
-                    (true, false) => min_u16(a, b),
-                    _ => max_u16(a, b),
-                }
+                compare_rows(c, a, b);
             }
             let (lower, upper) = (&block[self.lower * B..][..len], &block[self.upper * B..][..len]);
             for ((o, &l), &u) in out.iter_mut().zip(lower).zip(upper) {
                 *o = ((f64::from(l) + f64::from(u)) / 2.0 / self.max) as f32;
             }
         }
-    }
-}
-
-#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-fn min_max_u16(a: &mut [u16], b: &mut [u16]) {
-    for (x, y) in a.iter_mut().zip(b.iter_mut()) {
-        let (lo, hi) = ((*x).min(*y), (*x).max(*y));
-        *x = lo;
-        *y = hi;
-    }
-}
-
-#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-fn min_u16(a: &mut [u16], b: &[u16]) {
-    for (x, &y) in a.iter_mut().zip(b) {
-        *x = (*x).min(y);
-    }
-}
-
-#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-fn max_u16(a: &[u16], b: &mut [u16]) {
-    for (&x, y) in a.iter().zip(b.iter_mut()) {
-        *y = (*y).max(x);
     }
 }
 

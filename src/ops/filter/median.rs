@@ -1,12 +1,11 @@
-//! `median`: the exact median over a square or disk window, with three engines
-//! that give the same result — a pruned comparator network run on whole rows
-//! (radius 1 and 2), a sliding histogram for 8/16-bit sources (larger radii)
-//! and selection (everything else). It does not quantise f32 data.
-
-use multiversion::multiversion;
+//! `median`: the exact median over a square or disk window, with four engines
+//! that give the same result — for radius 1 and 2 a pruned comparator network
+//! run on whole rows, on bytes for 8-bit sources (`median8`) or on f32, a
+//! sliding histogram for 8/16-bit sources (larger radii) and selection
+//! (everything else). It does not quantise f32 data.
 
 use super::median8;
-use super::network::{Comparator, selection_network};
+use super::network::{Comparator, compare_rows, selection_network, two};
 use crate::error::{Error, ParamError};
 use crate::ops::params::{self, Kind, OpSpec, ParamSpec};
 use crate::ops::{Domain, Operator, filter_planes};
@@ -205,41 +204,6 @@ fn median_network(n: usize) -> (Vec<Comparator>, usize) {
     (net, out[0])
 }
 
-#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-fn compare_both(a: &mut [f32], b: &mut [f32]) {
-    for (x, y) in a.iter_mut().zip(b.iter_mut()) {
-        let (lo, hi) = (x.min(*y), x.max(*y));
-        *x = lo;
-        *y = hi;
-    }
-}
-
-#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-fn compare_min(a: &mut [f32], b: &[f32]) {
-    for (x, &y) in a.iter_mut().zip(b) {
-        *x = x.min(y);
-    }
-}
-
-#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-fn compare_max(a: &[f32], b: &mut [f32]) {
-    for (&x, y) in a.iter().zip(b.iter_mut()) {
-        *y = y.max(x);
-    }
-}
-
-/// Two distinct slots of `slots`, mutably.
-fn two(slots: &mut [Vec<f32>], a: usize, b: usize) -> (&mut Vec<f32>, &mut Vec<f32>) {
-    debug_assert_ne!(a, b);
-    if a < b {
-        let (l, h) = slots.split_at_mut(b);
-        (&mut l[a], &mut h[0])
-    } else {
-        let (l, h) = slots.split_at_mut(a);
-        (&mut h[0], &mut l[b])
-    }
-}
-
 /// The network engine: every window sample is a whole shifted row, and each
 /// comparator is a min/max over rows, so the work vectorises. Needs finite
 /// samples (`f32::min` would drop a NaN).
@@ -269,11 +233,7 @@ fn network_median(p: &Plane, window: &[(isize, usize)], r: usize, border: Border
                 for c in &net {
                     let (a, b) = two(&mut slots, c.a, c.b);
                     let (a, b) = (&mut a[..len], &mut b[..len]);
-                    match (c.keep_min, c.keep_max) {
-                        (true, true) => compare_both(a, b),
-                        (true, false) => compare_min(a, b),
-                        _ => compare_max(a, b),
-                    }
+                    compare_rows(c, a, b);
                 }
                 out_row[x0..x0 + len].copy_from_slice(&slots[out_slot][..len]);
             }

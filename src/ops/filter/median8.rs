@@ -9,7 +9,7 @@ use std::sync::OnceLock;
 use multiversion::multiversion;
 use rayon::prelude::*;
 
-use super::network::{Comparator, selection_network};
+use super::network::{Comparator, compare_rows, selection_network, two};
 use crate::raster::Plane;
 use crate::tile::{self, Border};
 
@@ -149,51 +149,12 @@ fn values_of(src: &[u8], dst: &mut [f32]) {
     }
 }
 
-#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-fn compare_both(a: &mut [u8], b: &mut [u8]) {
-    for (x, y) in a.iter_mut().zip(b.iter_mut()) {
-        let (lo, hi) = ((*x).min(*y), (*x).max(*y));
-        *x = lo;
-        *y = hi;
-    }
-}
-
-#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-fn compare_min(a: &mut [u8], b: &[u8]) {
-    for (x, &y) in a.iter_mut().zip(b) {
-        *x = (*x).min(y);
-    }
-}
-
-#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-fn compare_max(a: &[u8], b: &mut [u8]) {
-    for (&x, y) in a.iter().zip(b.iter_mut()) {
-        *y = (*y).max(x);
-    }
-}
-
 /// Runs `net` on the rows `slots`, each comparator a min/max over `len` lanes.
 fn run_network(net: &[Comparator], slots: &mut [Vec<u8>], len: usize) {
     for c in net {
         let (a, b) = two(slots, c.a, c.b);
         let (a, b) = (&mut a[..len], &mut b[..len]);
-        match (c.keep_min, c.keep_max) {
-            (true, true) => compare_both(a, b),
-            (true, false) => compare_min(a, b),
-            _ => compare_max(a, b),
-        }
-    }
-}
-
-/// Two distinct slots of `slots`, mutably.
-fn two(slots: &mut [Vec<u8>], a: usize, b: usize) -> (&mut Vec<u8>, &mut Vec<u8>) {
-    debug_assert_ne!(a, b);
-    if a < b {
-        let (l, h) = slots.split_at_mut(b);
-        (&mut l[a], &mut h[0])
-    } else {
-        let (l, h) = slots.split_at_mut(a);
-        (&mut h[0], &mut l[b])
+        compare_rows(c, a, b);
     }
 }
 

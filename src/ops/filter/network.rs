@@ -4,6 +4,8 @@
 //! over two rows), the work vectorises; `median` uses them for small windows
 //! and `stack` for the median across frames.
 
+use multiversion::multiversion;
+
 /// One comparator of a network on value slots: `a ← min(a, b)`,
 /// `b ← max(a, b)`, either half skipped when nothing downstream reads it.
 #[derive(Clone, Copy, Debug)]
@@ -71,6 +73,79 @@ pub fn selection_network(n: usize, outputs: &[usize]) -> (Vec<Comparator>, Vec<u
     }
     kept.reverse();
     (kept, out_slots)
+}
+
+/// A sample type the networks run on, with its minimum and maximum (for
+/// f32, `f32::min` and `f32::max`: the samples must be finite, as a NaN
+/// would be dropped).
+pub trait Lane: Copy {
+    fn lo(self, other: Self) -> Self;
+    fn hi(self, other: Self) -> Self;
+}
+
+impl Lane for f32 {
+    fn lo(self, other: f32) -> f32 {
+        self.min(other)
+    }
+    fn hi(self, other: f32) -> f32 {
+        self.max(other)
+    }
+}
+
+impl Lane for u8 {
+    fn lo(self, other: u8) -> u8 {
+        self.min(other)
+    }
+    fn hi(self, other: u8) -> u8 {
+        self.max(other)
+    }
+}
+
+impl Lane for u16 {
+    fn lo(self, other: u16) -> u16 {
+        self.min(other)
+    }
+    fn hi(self, other: u16) -> u16 {
+        self.max(other)
+    }
+}
+
+/// Comparator `c` on whole rows: `a` is its slot `c.a` (gets the minima),
+/// `b` its slot `c.b` (the maxima), lane by lane; a half nothing reads later
+/// is skipped. Plain loops, so the compiler vectorises them.
+#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
+pub fn compare_rows<T: Lane>(c: &Comparator, a: &mut [T], b: &mut [T]) {
+    match (c.keep_min, c.keep_max) {
+        (true, true) => {
+            for (x, y) in a.iter_mut().zip(b.iter_mut()) {
+                let (lo, hi) = (x.lo(*y), x.hi(*y));
+                *x = lo;
+                *y = hi;
+            }
+        }
+        (true, false) => {
+            for (x, &y) in a.iter_mut().zip(b.iter()) {
+                *x = x.lo(y);
+            }
+        }
+        _ => {
+            for (&x, y) in a.iter().zip(b.iter_mut()) {
+                *y = y.hi(x);
+            }
+        }
+    }
+}
+
+/// Two distinct slots of `slots`, mutably.
+pub fn two<T>(slots: &mut [Vec<T>], a: usize, b: usize) -> (&mut Vec<T>, &mut Vec<T>) {
+    debug_assert_ne!(a, b);
+    if a < b {
+        let (l, h) = slots.split_at_mut(b);
+        (&mut l[a], &mut h[0])
+    } else {
+        let (l, h) = slots.split_at_mut(a);
+        (&mut h[0], &mut l[b])
+    }
 }
 
 #[cfg(test)]

@@ -2,7 +2,6 @@
 //! arithmetic lives here; alpha and domain handling are `ops::filter_planes`'.
 
 use super::engine::correlate_separable;
-use super::rows;
 use crate::error::{Error, ParamError};
 use crate::ops::params::{self, Kind, OpSpec, ParamSpec};
 use crate::ops::{Domain, Operator, filter_planes};
@@ -24,8 +23,7 @@ row sums    R(x, y) = R(x-1, y) + S(x+r, y) - S(x-r-1, y)         (running, f64)
 out(x, y) = R(x, y) / (2r+1)²
 ```
 
-The running sums are kept in f64 and restarted for every band of rows (the
-row sums also at four points of each row, which run side by side), so
+The running sums are kept in f64 and restarted for every band of rows, so
 rounding does not build up; each output is rounded to f32 once.
 A plane holding NaN or infinity is filtered by a direct separable sum instead
 (a running sum would carry the NaN past its window); a non-finite sample then
@@ -98,7 +96,6 @@ fn running_box(src: &Plane, r: usize, border: Border) -> Plane {
             }
         }
         let mut padded = vec![0.0f64; w + 2 * r];
-        let mut sums = vec![0.0f64; w];
         for (i, out_row) in band.chunks_exact_mut(w).enumerate() {
             let y = y0 + i as isize;
             if i > 0 {
@@ -112,9 +109,11 @@ fn running_box(src: &Plane, r: usize, border: Border) -> Plane {
                 padded[i] = left[i].map_or(fill, |j| col[j]);
                 padded[r + w + i] = right[i].map_or(fill, |j| col[j]);
             }
-            rows::running_sums(&padded, 2 * r + 1, &mut sums);
-            for (o, &s) in out_row.iter_mut().zip(&sums) {
-                *o = (s * inv) as f32;
+            let mut s: f64 = padded[..2 * r + 1].iter().sum();
+            out_row[0] = (s * inv) as f32;
+            for x in 1..w {
+                s += padded[x + 2 * r] - padded[x - 1];
+                out_row[x] = (s * inv) as f32;
             }
         }
     });

@@ -9,7 +9,7 @@ use std::sync::OnceLock;
 use multiversion::multiversion;
 use rayon::prelude::*;
 
-use super::network::{Comparator, compare_rows, selection_network, two};
+use super::network::{Comparator, compare_rows, prune, selection_network, two};
 use crate::raster::Plane;
 use crate::tile::{self, Border};
 
@@ -55,18 +55,7 @@ impl ColumnNetwork {
         let useful: Vec<(usize, usize)> =
             full.iter().zip(&swaps).filter(|&(_, &s)| s).map(|(c, _)| (c.a, c.b)).collect();
         let out = outs[0];
-        let mut live = vec![false; n];
-        live[out] = true;
-        let mut net = Vec::new();
-        for &(a, b) in useful.iter().rev() {
-            let (keep_min, keep_max) = (live[a], live[b]);
-            if keep_min || keep_max {
-                net.push(Comparator { a, b, keep_min, keep_max });
-                live[a] = true;
-                live[b] = true;
-            }
-        }
-        net.reverse();
+        let net = prune(&useful, n, &[out]);
         ColumnNetwork { columns, net, out }
     }
 

@@ -58,8 +58,15 @@ pub fn selection_network(n: usize, outputs: &[usize]) -> (Vec<Comparator>, Vec<u
         .iter()
         .map(|&o| label[o].unwrap_or_else(|| unreachable!("wires below n hold values")))
         .collect();
+    (prune(&ops, n, &out_slots), out_slots)
+}
+
+/// The comparators of `ops` (pairs `(a, b)` on `n` slots: min into `a`, max
+/// into `b`, in order) that the slots `outputs` depend on, found backwards;
+/// each keeps only the halves something downstream reads.
+pub fn prune(ops: &[(usize, usize)], n: usize, outputs: &[usize]) -> Vec<Comparator> {
     let mut live = vec![false; n];
-    for &s in &out_slots {
+    for &s in outputs {
         live[s] = true;
     }
     let mut kept = Vec::new();
@@ -72,7 +79,7 @@ pub fn selection_network(n: usize, outputs: &[usize]) -> (Vec<Comparator>, Vec<u
         }
     }
     kept.reverse();
-    (kept, out_slots)
+    kept
 }
 
 /// A sample type the networks run on, with its minimum and maximum (for

@@ -7,6 +7,8 @@
 //! Memory: each of the `in_flight` workers holds one image at a time (its
 //! file bytes while decoding, then its planes and the step outputs), so the
 //! peak is about `in_flight ×` one image's working set, whatever the batch size.
+//! Between images a worker keeps the large buffers it freed, for the next
+//! image to reuse without page faults, but never more than its working set.
 
 pub mod discover;
 pub mod naming;
@@ -306,6 +308,9 @@ pub fn run(
     std::thread::scope(|scope| {
         for _ in 0..workers {
             scope.spawn(|| {
+                // The worker's large buffers stay mapped from one image to the
+                // next, within its one-image working set (see `raster::recycle`).
+                let _reuse = crate::raster::recycle::Scope::open();
                 loop {
                     let i = next.fetch_add(1, Ordering::Relaxed);
                     let Some(file) = plan.files.get(i) else { break };

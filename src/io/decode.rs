@@ -14,7 +14,9 @@ use super::{exif, jpeg_markers};
 use crate::color::srgb;
 use crate::error::Error;
 use crate::ops::geometry::Move;
-use crate::raster::{Encoding, Layout, Metadata, Plane, Raster, Resolution, ResolutionUnit, SampleType};
+use crate::raster::{
+    Encoding, Layout, Metadata, Plane, Raster, Resolution, ResolutionUnit, SampleType, recycle,
+};
 
 /// Bounds on what one decode may take.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -336,24 +338,35 @@ fn planar(
         opts.linear_light && sample != SampleType::F32 && opts.encoding.resolve(sample) == Encoding::Srgb;
     let colour = layout.colour_channels();
     let divide_u8: Vec<f32> = (0..256).map(|v| v as f32 / 255.0).collect();
+    // Row `y` of channel `c` from the interleaved samples, through `f`.
+    fn split<T: Copy + Sync>(
+        s: &[T],
+        (width, height, n, c): (usize, usize, usize, usize),
+        f: impl Fn(T) -> f32 + Sync,
+    ) -> Result<Plane, Error> {
+        Plane::from_rows(width, height, |y, row| {
+            let src = &s[y * width * n..(y + 1) * width * n];
+            for (o, px) in row.iter_mut().zip(src.chunks_exact(n)) {
+                *o = f(px[c]);
+            }
+        })
+    }
     let planes = (0..n)
         .map(|c| {
             let linear = to_linear && c < colour;
-            let data: Vec<f32> = match &samples {
+            let at = (width, height, n, c);
+            match &samples {
                 Samples::U8(s) => {
                     let table: &[f32] = if linear { srgb::decode_table_u8() } else { &divide_u8 };
-                    (0..width * height).into_par_iter().map(|i| table[usize::from(s[i * n + c])]).collect()
+                    split(s, at, |v| table[usize::from(v)])
                 }
                 Samples::U16(s) if linear => {
                     let table = srgb::decode_table_u16();
-                    (0..width * height).into_par_iter().map(|i| table[usize::from(s[i * n + c])]).collect()
+                    split(s, at, |v| table[usize::from(v)])
                 }
-                Samples::U16(s) => {
-                    (0..width * height).into_par_iter().map(|i| f32::from(s[i * n + c]) / 65535.0).collect()
-                }
-                Samples::F32(s) => (0..width * height).into_par_iter().map(|i| s[i * n + c]).collect(),
-            };
-            Plane::from_vec(width, height, data)
+                Samples::U16(s) => split(s, at, |v| f32::from(v) / 65535.0),
+                Samples::F32(s) => split(s, at, |v| v),
+            }
         })
         .collect::<Result<Vec<_>, Error>>()?;
     Raster::new(planes, layout, if to_linear { Encoding::Linear } else { Encoding::Srgb })
@@ -544,13 +557,12 @@ fn image_error(format: Format, e: image::ImageError) -> Error {
 fn decode_generic(bytes: &[u8], format: Format, opts: &DecodeOptions) -> Result<Decoded, Error> {
     let limits = &opts.limits;
     let image_format = match format {
-        Format::Jpeg => image::ImageFormat::Jpeg,
         Format::Webp => image::ImageFormat::WebP,
         Format::Bmp => image::ImageFormat::Bmp,
         Format::Gif => image::ImageFormat::Gif,
         Format::Exr => image::ImageFormat::OpenExr,
-        Format::Png | Format::Tiff => {
-            return Err(Error::Internal("PNG and TIFF have their own decoders".into()));
+        Format::Png | Format::Tiff | Format::Jpeg => {
+            return Err(Error::Internal("PNG, TIFF and JPEG have their own decoders".into()));
         }
     };
     let err = |e| image_error(format, e);
@@ -590,21 +602,73 @@ fn decode_generic(bytes: &[u8], format: Format, opts: &DecodeOptions) -> Result<
         }
     };
     let mut raster = raster;
-    let resolution = if format == Format::Jpeg { jpeg_markers::read(bytes).resolution } else { None };
-    raster.metadata = Metadata { icc_profile, exif, resolution, ..Metadata::default() };
+    raster.metadata = Metadata { icc_profile, exif, ..Metadata::default() };
     Ok(Decoded { raster, sample, orientation: None })
 }
 
-/// JPEG: four-component (CMYK, YCCK) files take their own path; the rest go
-/// through the `image` crate.
+/// JPEG: four-component (CMYK, YCCK) files take their own path.
 fn decode_jpeg(bytes: &[u8], opts: &DecodeOptions) -> Result<Decoded, Error> {
-    let limits = &opts.limits;
     let headers = jpeg_markers::read(bytes);
     if headers.components == Some(4) {
-        decode_cmyk_jpeg(bytes, &headers, limits)
+        decode_cmyk_jpeg(bytes, &headers, &opts.limits)
     } else {
-        decode_generic(bytes, Format::Jpeg, opts)
+        decode_colour_jpeg(bytes, &headers, opts)
     }
+}
+
+/// zune-jpeg, set up leniently as the image crate sets it up. JPEG frame sizes
+/// are 16-bit (ITU-T T.81 §B.2.2), so no frame is refused for its size here;
+/// `Limits` decides.
+fn zune_decoder(bytes: &[u8]) -> zune_jpeg::JpegDecoder<zune_core::bytestream::ZCursor<&[u8]>> {
+    let options = zune_core::options::DecoderOptions::default()
+        .set_strict_mode(false)
+        .set_max_width(usize::from(u16::MAX))
+        .set_max_height(usize::from(u16::MAX));
+    zune_jpeg::JpegDecoder::new_with_options(zune_core::bytestream::ZCursor::new(bytes), options)
+}
+
+fn no_frame() -> Error {
+    Error::Decode { format: "JPEG", reason: "no frame header".into() }
+}
+
+/// Decodes a gray, YCbCr or RGB JPEG to 8-bit gray or RGB samples with
+/// zune-jpeg, into a zeroed buffer taken from `raster::recycle` (in a batch,
+/// the pages of the previous photo's buffer; zeroed, so whatever a damaged
+/// file leaves undecoded is black, never a stale photo), then into planes.
+fn decode_colour_jpeg(
+    bytes: &[u8],
+    headers: &jpeg_markers::JpegHeaders,
+    opts: &DecodeOptions,
+) -> Result<Decoded, Error> {
+    use zune_core::colorspace::ColorSpace;
+
+    let mut d = zune_decoder(bytes);
+    d.decode_headers().map_err(zune_error)?;
+    let (width, height) = d.dimensions().ok_or_else(no_frame)?;
+    let (layout, wanted) = match d.input_colorspace() {
+        Some(ColorSpace::Luma) => (Layout::Gray, ColorSpace::Luma),
+        Some(ColorSpace::LumaA) => (Layout::GrayAlpha, ColorSpace::LumaA),
+        _ => (Layout::Rgb, ColorSpace::RGB),
+    };
+    // At most 65535² pixels of 3 bytes: no overflow on a 64-bit usize.
+    let len = width * height * layout.channels();
+    opts.limits.check(Format::Jpeg, width as u64, height as u64, len as u64)?;
+    d.set_options(d.options().jpeg_set_out_colorspace(wanted));
+    let icc_profile = d.icc_profile();
+    let exif = d.exif().cloned();
+    let mut buf = recycle::filled(len.div_ceil(4), 0.0);
+    let samples = &mut bytemuck::cast_slice_mut::<f32, u8>(&mut buf)[..len];
+    d.decode_into(samples).map_err(zune_error)?;
+    if d.output_colorspace() != Some(wanted) {
+        return Err(Error::Decode {
+            format: "JPEG",
+            reason: format!("the decoder did not return {wanted:?} samples"),
+        });
+    }
+    let mut raster = planar(width, height, layout, Samples::U8(samples), opts)?;
+    recycle::give(buf);
+    raster.metadata = Metadata { icc_profile, exif, resolution: headers.resolution, ..Metadata::default() };
+    Ok(Decoded { raster, sample: SampleType::U8, orientation: None })
 }
 
 /// How a four-component JPEG stores its samples, from its Adobe APP14 marker
@@ -691,20 +755,10 @@ fn decode_cmyk_jpeg(
     headers: &jpeg_markers::JpegHeaders,
     limits: &Limits,
 ) -> Result<Decoded, Error> {
-    use zune_core::bytestream::ZCursor;
-    use zune_core::options::DecoderOptions as ZuneOptions;
-
     let storage = CmykStorage::from_headers(headers)?;
-    // Lenient, as the image crate sets zune-jpeg up for the other JPEGs. JPEG frame sizes are 16-bit (ITU-T T.81 §B.2.2), so no frame is refused for its size here;
-    // `Limits` decides.
-    let options = ZuneOptions::default()
-        .set_strict_mode(false)
-        .set_max_width(usize::from(u16::MAX))
-        .set_max_height(usize::from(u16::MAX));
-    let mut d = zune_jpeg::JpegDecoder::new_with_options(ZCursor::new(bytes), options);
+    let mut d = zune_decoder(bytes);
     d.decode_headers().map_err(zune_error)?;
-    let (width, height) =
-        d.dimensions().ok_or_else(|| Error::Decode { format: "JPEG", reason: "no frame header".into() })?;
+    let (width, height) = d.dimensions().ok_or_else(no_frame)?;
     let (w, h) = (width as u64, height as u64);
     limits.check(Format::Jpeg, w, h, w.saturating_mul(h).saturating_mul(4))?;
     let components = d.info().map(|i| i.components);

@@ -40,6 +40,20 @@ impl Plane {
         Ok(Plane { width, height, data })
     }
 
+    /// A plane whose row `y` is written by `f(y, row)`, rows in parallel.
+    /// `f` must write every sample of its row: the buffer may be a reused one
+    /// (see [`recycle`]) that still holds earlier samples.
+    pub fn from_rows(
+        width: usize,
+        height: usize,
+        f: impl Fn(usize, &mut [f32]) + Sync,
+    ) -> Result<Self, Error> {
+        let len = checked_len(width, height)?;
+        let mut data = recycle::for_overwrite(len);
+        data.par_chunks_mut(width).enumerate().for_each(|(y, row)| f(y, row));
+        Ok(Plane { width, height, data })
+    }
+
     /// A plane whose sample at `(x, y)` is `f(x, y)`.
     pub fn from_fn(
         width: usize,

@@ -94,29 +94,60 @@ impl Resize {
     }
 }
 
-/// Resamples one plane to `out_w × out_h` with `filter`.
-pub fn resample_plane(src: &Plane, out_w: usize, out_h: usize, filter: Filter) -> Result<Plane, Error> {
-    let (w, h) = (src.width(), src.height());
-    let wx = Weights::new(w, out_w, filter);
-    let wy = Weights::new(h, out_h, filter);
-    // Multiply-adds of each order; take the cheaper.
-    let columns_first = h * out_w * wx.taps + out_h * out_w * wy.taps;
-    let rows_first = out_h * w * wy.taps + out_h * out_w * wx.taps;
-    if columns_first <= rows_first {
-        let mid = horizontal(src, &wx, out_w)?;
-        vertical(&mid, &wy, out_h)
-    } else {
-        let mid = vertical(src, &wy, out_h)?;
-        horizontal(&mid, &wx, out_w)
+/// Resampling of `w × h` planes to `out_w × out_h`, with the weights of both
+/// passes computed once for all the planes of an image.
+pub struct Resampler {
+    wx: Weights,
+    wy: Weights,
+    out_w: usize,
+    out_h: usize,
+}
+
+impl Resampler {
+    pub fn new(w: usize, h: usize, out_w: usize, out_h: usize, filter: Filter) -> Resampler {
+        Resampler { wx: Weights::new(w, out_w, filter), wy: Weights::new(h, out_h, filter), out_w, out_h }
+    }
+
+    /// Resamples one plane (of the size given to [`Resampler::new`]).
+    pub fn plane(&self, src: &Plane) -> Result<Plane, Error> {
+        let (w, h) = (src.width(), src.height());
+        let (wx, wy, out_w, out_h) = (&self.wx, &self.wy, self.out_w, self.out_h);
+        // Multiply-adds of each order; take the cheaper.
+        let columns_first = h * out_w * wx.taps + out_h * out_w * wy.taps;
+        let rows_first = out_h * w * wy.taps + out_h * out_w * wx.taps;
+        if columns_first <= rows_first {
+            let mid = horizontal(src, wx, out_w)?;
+            vertical(&mid, wy, out_h)
+        } else {
+            let mid = vertical(src, wy, out_h)?;
+            horizontal(&mid, wx, out_w)
+        }
     }
 }
 
-/// Resamples every row to `out_w` samples.
+/// Resamples every row to `out_w` samples, [`rows::LANES`] rows at a time:
+/// they are interleaved into lane vectors, resampled together, and written back.
 fn horizontal(src: &Plane, wx: &Weights, out_w: usize) -> Result<Plane, Error> {
+    use rows::LANES;
+    let w = src.width();
     let mut out = Plane::zeros(out_w, src.height())?;
-    tile::for_each_band(&mut out, tile::band_rows(out_w, 0), |y0, band| {
-        for (i, row) in band.chunks_exact_mut(out_w).enumerate() {
-            rows::weighted_gather(row, src.row(y0 + i), &wx.start, &wx.count, &wx.weights, wx.taps);
+    tile::for_each_band(&mut out, tile::band_rows(out_w, 0).next_multiple_of(LANES), |y0, band| {
+        let mut lanes = vec![[0.0f32; LANES]; w];
+        let mut resampled = vec![[0.0f32; LANES]; out_w];
+        for (g, group) in band.chunks_mut(out_w * LANES).enumerate() {
+            let y = y0 + g * LANES;
+            let n = group.len() / out_w;
+            for r in 0..n {
+                for (l, &v) in lanes.iter_mut().zip(src.row(y + r)) {
+                    l[r] = v;
+                }
+            }
+            rows::weighted_gather_lanes(&mut resampled, &lanes, &wx.start, &wx.count, &wx.weights, wx.taps);
+            for (r, row) in group.chunks_exact_mut(out_w).enumerate() {
+                for (o, l) in row.iter_mut().zip(&resampled) {
+                    *o = l[r];
+                }
+            }
         }
     });
     Ok(out)
@@ -166,16 +197,13 @@ impl Operator for Resize {
             r.y *= rh as f64 / h as f64;
         }
         let filter = self.filter;
+        let resampler = Resampler::new(w, h, rw, rh, filter);
         let resized = if filter == Filter::Nearest {
             let layout = raster.layout();
-            let planes = raster
-                .planes()
-                .iter()
-                .map(|p| resample_plane(p, rw, rh, filter))
-                .collect::<Result<_, _>>()?;
+            let planes = raster.planes().iter().map(|p| resampler.plane(p)).collect::<Result<_, _>>()?;
             raster.with_planes(planes, layout)?
         } else {
-            filter_planes(raster, |p| resample_plane(p, rw, rh, filter))?
+            filter_planes(raster, |p| resampler.plane(p))?
         };
         let mut out = match crop {
             Some(rect) => {

@@ -65,13 +65,9 @@ impl Sharpen {
         let (amount, threshold) = (self.amount, self.threshold);
         for (b, &v) in blurred.as_mut_slice().iter_mut().zip(p.as_slice()) {
             let d = v - *b;
-            *b = if d.abs() >= threshold {
-                v + amount * d
-            } else if d.is_nan() {
-                d
-            } else {
-                v
-            };
+            // A NaN difference fails the comparison and propagates through
+            // `v + amount · d`; written as a select, the loop vectorises.
+            *b = if d.abs() < threshold { v } else { v + amount * d };
         }
         blurred
     }

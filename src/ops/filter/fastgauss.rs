@@ -100,33 +100,68 @@ fn pass_lanes(inp: &[[f64; LANES]], b: ExtendedBox, out: &mut [[f64; LANES]]) {
     }
 }
 
+/// `lanes[x][l] = rows[l·w + x]` for the rows of `rows` (`w` samples each, at
+/// most LANES rows); lanes past them are left alone. A full group is read
+/// LANES columns at a time, so each lane vector is written whole.
+#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
+fn interleave(rows: &[f32], w: usize, lanes: &mut [[f64; LANES]]) {
+    let lanes = &mut lanes[..w];
+    if rows.len() == LANES * w {
+        let r: [&[f32]; LANES] = std::array::from_fn(|l| &rows[l * w..(l + 1) * w]);
+        for (x, e) in lanes.iter_mut().enumerate() {
+            *e = std::array::from_fn(|l| f64::from(r[l][x]));
+        }
+    } else {
+        for (l, row) in rows.chunks_exact(w).enumerate() {
+            for (e, &v) in lanes.iter_mut().zip(row) {
+                e[l] = f64::from(v);
+            }
+        }
+    }
+}
+
+/// `rows[l·w + x] = lanes[x][l]` rounded to f32, for the rows of `rows`: a
+/// block of columns at a time, so the block's lanes stay in L1 while each row
+/// takes its part.
+#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
+fn deinterleave(lanes: &[[f64; LANES]], rows: &mut [f32], w: usize) {
+    const BLOCK: usize = 64;
+    for (b, block) in lanes[..w].chunks(BLOCK).enumerate() {
+        for (l, row) in rows.chunks_exact_mut(w).enumerate() {
+            for (o, e) in row[b * BLOCK..].iter_mut().zip(block) {
+                *o = e[l] as f32;
+            }
+        }
+    }
+}
+
 /// Bytes of the two buffers of one column strip of the vertical passes: well
 /// inside a core's L2 (2 MiB on the machines measured).
 const STRIP_BYTES: usize = 1 << 20;
 
-/// One pass down a strip `w` samples wide, valid mode: `m` rows of `cur` give
-/// `m − 2r − 2` rows of `next` (`acc` holds the running column sums).
+/// One pass down a strip of columns, valid mode: the `m` rows of `inp` give
+/// the `m − 2r − 2` rows of `out`. `acc` holds the running column sums in f64
+/// (the row entering the window added, the one leaving it subtracted, in one
+/// sweep with the output row); the rows themselves are f32, which halves the
+/// cache traffic of the passes and rounds each pass's result once, by at most
+/// 2⁻²⁴ relative.
 #[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-fn vertical_pass(cur: &[f64], w: usize, b: ExtendedBox, acc: &mut [f64], next: &mut [f64]) {
-    let m = cur.len() / w;
-    let out_rows = m - 2 * (b.r + 1);
+fn vertical_pass(inp: &[&[f32]], b: ExtendedBox, acc: &mut [f64], out: &mut [&mut [f32]]) {
+    let span = 2 * b.r + 2;
     let inv = 1.0 / (2.0 * b.r as f64 + 1.0 + 2.0 * b.alpha);
+    // acc starts as rows 0 ..= 2r; output row i takes rows i + 1 ..= i + 2r + 1
+    // at weight 1 and rows i and i + 2r + 2 at weight alpha.
     acc.fill(0.0);
-    for k in 1..2 * b.r + 2 {
-        for (a, &v) in acc.iter_mut().zip(&cur[k * w..(k + 1) * w]) {
-            *a += v;
+    for row in &inp[..span - 1] {
+        for (a, &v) in acc.iter_mut().zip(*row) {
+            *a += f64::from(v);
         }
     }
-    for i in 0..out_rows {
-        if i > 0 {
-            let (add, sub) = (&cur[(i + 2 * b.r + 1) * w..][..w], &cur[i * w..][..w]);
-            for ((a, &p), &q) in acc.iter_mut().zip(add).zip(sub) {
-                *a += p - q;
-            }
-        }
-        let (lo, hi) = (&cur[i * w..][..w], &cur[(i + 2 * b.r + 2) * w..][..w]);
-        for (((o, &a), &l), &u) in next[i * w..(i + 1) * w].iter_mut().zip(&*acc).zip(lo).zip(hi) {
-            *o = (a + b.alpha * (l + u)) * inv;
+    for (i, o) in out.iter_mut().enumerate() {
+        let (lo, add, hi) = (inp[i], inp[i + span - 1], inp[i + span]);
+        for ((((o, a), &l), &p), &u) in o.iter_mut().zip(acc.iter_mut()).zip(lo).zip(add).zip(hi) {
+            *a += f64::from(p) - f64::from(l);
+            *o = ((*a + b.alpha * (f64::from(l) + f64::from(u))) * inv) as f32;
         }
     }
 }
@@ -134,7 +169,12 @@ fn vertical_pass(cur: &[f64], w: usize, b: ExtendedBox, acc: &mut [f64], next: &
 /// The Gaussian of `src` by `PASSES` extended boxes along each axis. The
 /// border rule is applied once, to the source (a halo of `PASSES·(r+1)`), and
 /// the passes run in valid mode, so every rule means what it means for the
-/// exact kernel. Sums are in f64.
+/// exact kernel. Running sums are in f64; between passes samples are f32.
+///
+/// Each band runs its vertical passes strip by strip into the output band,
+/// then its horizontal passes on groups of LANES rows side by side, in
+/// buffers of one group's size (no band-sized scratch, whose fresh pages
+/// would cost as much as the passes).
 pub fn cascade_gauss(src: &Plane, b: ExtendedBox, border: Border) -> Plane {
     let (w, h) = (src.width(), src.height());
     let halo = PASSES * (b.r + 1);
@@ -150,62 +190,61 @@ pub fn cascade_gauss(src: &Plane, b: ExtendedBox, border: Border) -> Plane {
         // (rows y0 − halo .. y0 + nb + halo, shrinking by r + 1 a side per
         // pass) stay in the core's cache across the passes.
         let m0 = nb + 2 * halo;
-        let strip = (STRIP_BYTES / (m0 * 2 * size_of::<f64>())).max(8).min(w);
-        let mut cur = vec![0.0f64; m0 * strip];
-        let mut next = vec![0.0f64; m0 * strip];
+        let strip = (STRIP_BYTES / (m0 * 2 * size_of::<f32>())).max(8).min(w);
+        let mut cur = vec![0.0f32; m0 * strip];
+        let mut next = vec![0.0f32; m0 * strip];
         let mut acc = vec![0.0f64; strip];
-        // The vertical results go straight into the layout of the horizontal
-        // passes: LANES rows side by side (lane l of element x of group g is
-        // row g·LANES + l, column x − halo), so each step of a running sum
-        // there is one vector operation for all of them.
-        let wp = w + 2 * halo;
-        let mut lanes = vec![[0.0f64; LANES]; nb.div_ceil(LANES) * wp];
+        let span = 2 * (b.r + 1);
         for x0 in (0..w).step_by(strip) {
             let sw = strip.min(w - x0);
-            for k in 0..m0 {
-                let y = (y0 + k) as isize - halo as isize;
-                let row = &tile::source_row(src, y, border).unwrap_or(&const_row)[x0..x0 + sw];
-                for (c, &v) in cur[k * sw..(k + 1) * sw].iter_mut().zip(row) {
-                    *c = f64::from(v);
-                }
-            }
+            // the first pass reads the source rows, the last writes the band
+            let source: Vec<&[f32]> = (0..m0)
+                .map(|k| {
+                    let y = (y0 + k) as isize - halo as isize;
+                    &tile::source_row(src, y, border).unwrap_or(&const_row)[x0..x0 + sw]
+                })
+                .collect();
             let mut m = m0;
-            for _ in 0..PASSES {
-                vertical_pass(&cur[..m * sw], sw, b, &mut acc[..sw], &mut next);
+            for pass in 0..PASSES {
+                let inp: Vec<&[f32]> =
+                    if pass == 0 { source.clone() } else { cur[..m * sw].chunks_exact(sw).collect() };
+                let mut out: Vec<&mut [f32]> = if pass + 1 == PASSES {
+                    band.chunks_exact_mut(w).map(|row| &mut row[x0..x0 + sw]).collect()
+                } else {
+                    next[..(m - span) * sw].chunks_exact_mut(sw).collect()
+                };
+                vertical_pass(&inp, b, &mut acc[..sw], &mut out);
+                drop((inp, out));
                 std::mem::swap(&mut cur, &mut next);
-                m -= 2 * (b.r + 1);
-            }
-            for i in 0..nb {
-                let (g, l) = (i / LANES, i % LANES);
-                for (e, &v) in lanes[g * wp + halo + x0..][..sw].iter_mut().zip(&cur[i * sw..(i + 1) * sw]) {
-                    e[l] = v;
-                }
+                m -= span;
             }
         }
-        // Horizontal, a group of LANES rows at a time: pad by the rule (a
+        // Horizontal, a group of LANES rows at a time (lane l of element x is
+        // row l of the group, column x − halo, so each step of a running sum
+        // is one vector operation for all of them): pad by the rule (a
         // constant stays itself: the kernel sums to 1), then the passes in
-        // valid mode.
+        // valid mode. In the last group, lanes past its rows keep finite
+        // values of an earlier group and are not written back.
+        let wp = w + 2 * halo;
         let fill = [f64::from(border.constant_value()); LANES];
+        let mut group = vec![[0.0f64; LANES]; wp];
         let mut line = vec![[0.0f64; LANES]; wp];
         let mut tmp = vec![[0.0f64; LANES]; wp];
-        for (g, group) in lanes.chunks_exact_mut(wp).enumerate() {
+        for rows in band.chunks_mut(LANES * w) {
+            interleave(rows, w, &mut group[halo..halo + w]);
             for k in 0..halo {
                 group[k] = left[k].map_or(fill, |j| group[halo + j]);
                 group[halo + w + k] = right[k].map_or(fill, |j| group[halo + j]);
             }
             let mut len = wp - 2 * (b.r + 1);
-            pass_lanes(group, b, &mut line[..len]);
+            pass_lanes(&group, b, &mut line[..len]);
             for _ in 1..PASSES {
                 let n = len - 2 * (b.r + 1);
                 pass_lanes(&line[..len], b, &mut tmp[..n]);
                 std::mem::swap(&mut line, &mut tmp);
                 len = n;
             }
-            for l in 0..LANES.min(nb - g * LANES) {
-                for (o, e) in band[(g * LANES + l) * w..][..w].iter_mut().zip(&line[..w]) {
-                    *o = e[l] as f32;
-                }
-            }
+            deinterleave(&line[..w], rows, w);
         }
     });
     out

@@ -9,7 +9,7 @@ use crate::error::{Error, ParamError};
 use crate::ops::filter::{correlate_2d, correlate_separable, gaussian_kernel};
 use crate::ops::params::{self, Kind, OpSpec, ParamSpec};
 use crate::ops::{Domain, Operator};
-use crate::raster::{Layout, Plane, Raster};
+use crate::raster::{Layout, Plane, Raster, recycle};
 use crate::tile::Border;
 
 mod canny;
@@ -52,15 +52,13 @@ impl GradientOutput {
 /// Which planes an edge operator differentiates.
 const ON_NAMES: [&str; 2] = ["luma", "channels"];
 
-/// The planes an edge operator works on: colour premultiplied by alpha, and
-/// reduced to BT.709 luma when `on_luma` and the raster has three colour
-/// planes. Returns them with the alpha plane (kept as it is) and the layout
-/// of the result.
-fn edge_planes(raster: &Raster, on_luma: bool) -> (Vec<Plane>, Option<Plane>, Layout) {
-    let layout = raster.layout();
-    let n = layout.colour_channels();
-    let alpha = raster.alpha().cloned();
-    let mut colour: Vec<Plane> = raster.planes()[..n].to_vec();
+/// The planes an edge operator works on, from a raster's `planes` and
+/// `layout`: colour premultiplied by alpha, and reduced to BT.709 luma when
+/// `on_luma` and there are three colour planes. Returns them with the alpha
+/// plane (kept as it is) and the layout of the result.
+fn edge_planes(mut planes: Vec<Plane>, layout: Layout, on_luma: bool) -> (Vec<Plane>, Option<Plane>, Layout) {
+    let alpha = if layout.has_alpha() { planes.pop() } else { None };
+    let mut colour = planes;
     if let Some(a) = &alpha {
         for p in &mut colour {
             for (v, &a) in p.as_mut_slice().iter_mut().zip(a.as_slice()) {
@@ -68,8 +66,8 @@ fn edge_planes(raster: &Raster, on_luma: bool) -> (Vec<Plane>, Option<Plane>, La
             }
         }
     }
-    if on_luma && n == 3 {
-        let (w, h) = (raster.width(), raster.height());
+    if on_luma && colour.len() == 3 {
+        let (w, h) = (colour[0].width(), colour[0].height());
         let mut y = Plane::zeros(w, h).unwrap_or_else(|_| unreachable!("same size as a valid plane"));
         luma::weighted_sum(
             luma::BT709,
@@ -83,12 +81,16 @@ fn edge_planes(raster: &Raster, on_luma: bool) -> (Vec<Plane>, Option<Plane>, La
     (colour, alpha, layout)
 }
 
-/// Runs `f` on each working plane and reassembles the raster.
+/// Runs `f` on each working plane (each source dropped once its result
+/// exists, so the next result can reuse its buffer) and reassembles the raster.
 fn run_edge(raster: Raster, on_luma: bool, f: impl Fn(&Plane) -> Plane) -> Result<Raster, Error> {
-    let (planes, alpha, layout) = edge_planes(&raster, on_luma);
-    let mut out: Vec<Plane> = planes.iter().map(f).collect();
-    out.extend(alpha);
-    raster.with_planes(out, layout)
+    let _reuse = recycle::Scope::open();
+    raster.replace_planes(|planes, layout| {
+        let (planes, alpha, layout) = edge_planes(planes, layout, on_luma);
+        let mut out: Vec<Plane> = planes.into_iter().map(|p| f(&p)).collect();
+        out.extend(alpha);
+        Ok((out, layout))
+    })
 }
 
 macro_rules! gradient_doc {

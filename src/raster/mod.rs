@@ -345,6 +345,19 @@ impl Raster {
         self.with_planes(out, layout)
     }
 
+    /// Hands the planes and layout to `f` by value and takes back the planes
+    /// and layout it returns, keeping encoding and metadata (as
+    /// [`Raster::with_planes`]): for a step that makes its result from planes
+    /// it owns, so it can drop (or reuse) each source as soon as it is done.
+    pub fn replace_planes(
+        mut self,
+        f: impl FnOnce(Vec<Plane>, Layout) -> Result<(Vec<Plane>, Layout), Error>,
+    ) -> Result<Raster, Error> {
+        let sources = std::mem::take(&mut self.planes);
+        let (planes, layout) = f(sources, self.layout)?;
+        self.with_planes(planes, layout)
+    }
+
     /// Consumes the raster and returns its planes.
     pub fn into_planes(self) -> Vec<Plane> {
         self.planes

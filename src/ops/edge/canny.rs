@@ -296,27 +296,29 @@ impl Operator for Canny {
     }
 
     fn apply(&self, raster: Raster) -> Result<Raster, Error> {
-        let (planes, alpha, layout) = edge_planes(&raster, self.on_luma);
-        let mut out = Vec::with_capacity(planes.len() + 1);
         let mut notes = Vec::new();
-        for p in &planes {
-            let (edges, found) = self.edges_plane(p);
-            out.push(edges);
-            if matches!(self.thresholds, Thresholds::Magnitude { .. }) {
-                continue;
-            }
-            if found.high.is_finite() {
-                for (name, value) in [("low threshold", found.low), ("high threshold", found.high)] {
-                    let value = NoteValue::Number { value: f64::from(value), unit: "" };
-                    notes.push(Note { operator: "canny", name, value });
+        let mut result = raster.replace_planes(|planes, layout| {
+            let (planes, alpha, layout) = edge_planes(planes, layout, self.on_luma);
+            let mut out = Vec::with_capacity(planes.len() + 1);
+            for p in &planes {
+                let (edges, found) = self.edges_plane(p);
+                out.push(edges);
+                if matches!(self.thresholds, Thresholds::Magnitude { .. }) {
+                    continue;
                 }
-            } else {
-                let value = NoteValue::Text("none: no gradient survived the thinning".into());
-                notes.push(Note { operator: "canny", name: "thresholds", value });
+                if found.high.is_finite() {
+                    for (name, value) in [("low threshold", found.low), ("high threshold", found.high)] {
+                        let value = NoteValue::Number { value: f64::from(value), unit: "" };
+                        notes.push(Note { operator: "canny", name, value });
+                    }
+                } else {
+                    let value = NoteValue::Text("none: no gradient survived the thinning".into());
+                    notes.push(Note { operator: "canny", name: "thresholds", value });
+                }
             }
-        }
-        out.extend(alpha);
-        let mut result = raster.with_planes(out, layout)?;
+            out.extend(alpha);
+            Ok((out, layout))
+        })?;
         result.levels = None;
         result.metadata.notes.extend(notes);
         Ok(result)

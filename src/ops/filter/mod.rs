@@ -42,7 +42,7 @@ out  = in ⊛ (g ⊗ g)    (vertical pass, then horizontal)
 method=fast: five extended boxes along each axis, by running sums (f64):
 b(i) = 1/c for |i| ≤ m,  α/c for |i| = m + 1,  c = 2m + 1 + 2α
 m, α chosen so that the five-fold cascade has variance exactly σ²
-method=auto: exact below sigma 8.5, fast from 8.5 up (FAST_SIGMA)
+method=auto: exact below sigma 5.5, fast from 5.5 up (FAST_SIGMA)
 ```
 
 Accuracy of fast: the 2-D cascade kernel is within an L1 distance of 0.044 of
@@ -78,13 +78,12 @@ pub enum GaussMethod {
 }
 
 /// The sigma from which `method=auto` takes the cascade. Measured with
-/// `cargo bench --bench filters` (4000×3000 RGB f32, 2 threads, one run on a
-/// quiet machine): exact 87.1 / 108.4 / 138.3 ms at σ = 4 / 6 / 8, fast
-/// 144.3 / 137.2 / 141.9 ms (flat, as it should be). The exact kernel's cost
-/// grows linearly with σ (about 13 ms per unit here), so the two cross near
-/// σ = 8.2; the cascade is taken from 8.5, a little above, since it is the
-/// less accurate of the two.
-pub const FAST_SIGMA: f64 = 8.5;
+/// `cargo bench --bench filters` (4000×3000 RGB f32, 2 threads, one run):
+/// exact 119 / 160 / 192 ms at σ = 4 / 6 / 8, fast 137 / 130 / 131 ms (flat,
+/// as it should be). The exact kernel's cost grows linearly with σ (about
+/// 18 ms per unit here), so the two cross near σ = 4.8; the cascade is taken
+/// from 5.5, a little above, since it is the less accurate of the two.
+pub const FAST_SIGMA: f64 = 5.5;
 
 impl Gauss {
     pub fn new(sigma: f64, truncate: f64, border: Border) -> Result<Gauss, ParamError> {
@@ -175,7 +174,7 @@ pub static GAUSS: OpSpec = OpSpec {
             name: "method",
             kind: Kind::Choice(&["auto", "exact", "fast"]),
             default: Some("auto"),
-            help: "exact kernel, constant-time box cascade, or auto (fast from sigma 8.5)",
+            help: "exact kernel, constant-time box cascade, or auto (fast from sigma 5.5)",
         },
     ],
     build: |a| {

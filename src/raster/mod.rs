@@ -332,17 +332,15 @@ impl Raster {
     /// source plane dropped as soon as its result exists (so the next result
     /// can reuse its buffer); keeps layout, encoding and metadata.
     pub fn map_planes(
-        mut self,
+        self,
         mut f: impl FnMut(usize, &Plane) -> Result<Plane, Error>,
     ) -> Result<Raster, Error> {
-        let sources = std::mem::take(&mut self.planes);
         let _reuse = recycle::Scope::open();
-        let mut out = Vec::with_capacity(sources.len());
-        for (i, p) in sources.into_iter().enumerate() {
-            out.push(f(i, &p)?);
-        }
-        let layout = self.layout;
-        self.with_planes(out, layout)
+        self.replace_planes(|sources, layout| {
+            let out =
+                sources.into_iter().enumerate().map(|(i, p)| f(i, &p)).collect::<Result<Vec<_>, _>>()?;
+            Ok((out, layout))
+        })
     }
 
     /// Hands the planes and layout to `f` by value and takes back the planes

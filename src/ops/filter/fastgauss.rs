@@ -206,15 +206,21 @@ pub fn cascade_gauss(src: &Plane, b: ExtendedBox, border: Border) -> Plane {
                 .collect();
             let mut m = m0;
             for pass in 0..PASSES {
-                let inp: Vec<&[f32]> =
-                    if pass == 0 { source.clone() } else { cur[..m * sw].chunks_exact(sw).collect() };
-                let mut out: Vec<&mut [f32]> = if pass + 1 == PASSES {
-                    band.chunks_exact_mut(w).map(|row| &mut row[x0..x0 + sw]).collect()
-                } else {
-                    next[..(m - span) * sw].chunks_exact_mut(sw).collect()
-                };
-                vertical_pass(&inp, b, &mut acc[..sw], &mut out);
-                drop((inp, out));
+                {
+                    let cur_rows: Vec<&[f32]>;
+                    let inp: &[&[f32]] = if pass == 0 {
+                        &source
+                    } else {
+                        cur_rows = cur[..m * sw].chunks_exact(sw).collect();
+                        &cur_rows
+                    };
+                    let mut out: Vec<&mut [f32]> = if pass + 1 == PASSES {
+                        band.chunks_exact_mut(w).map(|row| &mut row[x0..x0 + sw]).collect()
+                    } else {
+                        next[..(m - span) * sw].chunks_exact_mut(sw).collect()
+                    };
+                    vertical_pass(inp, b, &mut acc[..sw], &mut out);
+                }
                 std::mem::swap(&mut cur, &mut next);
                 m -= span;
             }

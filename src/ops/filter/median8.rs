@@ -4,6 +4,8 @@
 //! written back into the plane's own buffer. It does not decide when it
 //! applies beyond checking that every sample is on the 255 grid.
 
+mod square;
+
 use std::sync::OnceLock;
 
 use multiversion::multiversion;
@@ -12,6 +14,37 @@ use rayon::prelude::*;
 use super::network::{Comparator, compare_rows, prune, selection_network, two};
 use crate::raster::Plane;
 use crate::tile::{self, Border};
+
+/// The comparators that select the order statistics `ranks` of `Σ heights`
+/// slots laid out as groups of the given heights, each group sorted ascending
+/// on arrival, and the slot that holds each rank at the end.
+///
+/// Start from Batcher's network on all slots (pruned to the wanted ranks),
+/// then drop every comparator that never exchanges its inputs on any 0/1
+/// input whose groups are sorted, then prune again to the comparators the
+/// outputs depend on. Dropping is safe because the set of inputs with sorted
+/// groups is closed under monotone maps, so the zero–one principle (Knuth,
+/// TAOCP vol. 3, §5.3.4, Theorem Z) holds on it: a network that selects the
+/// ranks of every sorted-group 0/1 input selects them on every sorted-group
+/// input. A 0/1 group of height h is sorted exactly when its top t ranks are
+/// 1, t ∈ 0..=h, so there are ∏(h + 1) such inputs (6⁵ = 7776 for five groups
+/// of five).
+fn sorted_group_network(heights: &[usize], ranks: &[usize]) -> (Vec<Comparator>, Vec<usize>) {
+    let n: usize = heights.iter().sum();
+    let (full, outs) = selection_network(n, ranks);
+    let mut swaps = vec![false; full.len()];
+    for_each_sorted_input(heights, |wires| {
+        for (c, swapped) in full.iter().zip(swaps.iter_mut()) {
+            if wires[c.a] > wires[c.b] {
+                wires.swap(c.a, c.b);
+                *swapped = true;
+            }
+        }
+    });
+    let useful: Vec<(usize, usize)> =
+        full.iter().zip(&swaps).filter(|&(_, &s)| s).map(|(c, _)| (c.a, c.b)).collect();
+    (prune(&useful, n, &outs), outs)
+}
 
 /// A median network for a window whose columns arrive sorted.
 ///
@@ -27,46 +60,64 @@ pub(super) struct ColumnNetwork {
 }
 
 impl ColumnNetwork {
-    /// Builds the network for `columns` (see the type's doc).
-    ///
-    /// Start from Batcher's median network on all slots (pruned to the middle
-    /// output), then drop every comparator that never exchanges its inputs on
-    /// any 0/1 input whose columns are sorted, then prune again to the
-    /// comparators the middle output depends on. Dropping is safe because the
-    /// set of inputs with sorted columns is closed under monotone maps, so the
-    /// zero–one principle (Knuth, TAOCP vol. 3, §5.3.4, Theorem Z) holds on it:
-    /// a network that selects the median of every sorted-column 0/1 input
-    /// selects the median of every sorted-column input. A 0/1 column of height
-    /// h is sorted exactly when its top t ranks are 1, t ∈ 0..=h, so there are
-    /// ∏(h + 1) such inputs (6⁵ = 7776 for the 5×5 square).
+    /// Builds the network for `columns` (see the type's doc) by
+    /// [`sorted_group_network`], the columns being the groups.
     fn new(columns: Vec<(usize, usize)>) -> ColumnNetwork {
         let heights: Vec<usize> = columns.iter().map(|&(_, v)| 2 * v + 1).collect();
         let n: usize = heights.iter().sum();
-        let (full, outs) = selection_network(n, &[n / 2]);
-        let mut swaps = vec![false; full.len()];
-        for_each_sorted_input(&heights, |wires| {
-            for (c, swapped) in full.iter().zip(swaps.iter_mut()) {
-                if wires[c.a] > wires[c.b] {
-                    wires.swap(c.a, c.b);
-                    *swapped = true;
-                }
-            }
-        });
-        let useful: Vec<(usize, usize)> =
-            full.iter().zip(&swaps).filter(|&(_, &s)| s).map(|(c, _)| (c.a, c.b)).collect();
-        let out = outs[0];
-        let net = prune(&useful, n, &[out]);
-        ColumnNetwork { columns, net, out }
+        let (net, outs) = sorted_group_network(&heights, &[n / 2]);
+        ColumnNetwork { columns, net, out: outs[0] }
     }
 
-    /// The cached network for the square (`disk == false`) or disk window of
-    /// radius `r ∈ {1, 2}`, whose columns are `columns`.
-    fn cached(r: usize, disk: bool, columns: &[(usize, usize)]) -> &'static ColumnNetwork {
-        static NETS: [OnceLock<ColumnNetwork>; 4] =
-            [OnceLock::new(), OnceLock::new(), OnceLock::new(), OnceLock::new()];
-        let net = NETS[2 * (r - 1) + usize::from(disk)].get_or_init(|| ColumnNetwork::new(columns.to_vec()));
+    /// The cached network for the disk window of radius `r ∈ {1, 2}`, whose
+    /// columns are `columns`.
+    fn cached(r: usize, columns: &[(usize, usize)]) -> &'static ColumnNetwork {
+        static NETS: [OnceLock<ColumnNetwork>; 2] = [OnceLock::new(), OnceLock::new()];
+        let net = NETS[r - 1].get_or_init(|| ColumnNetwork::new(columns.to_vec()));
         debug_assert_eq!(net.columns, columns);
         net
+    }
+}
+
+/// The networks of the square window of side `k = 2r + 1` when two output
+/// rows share the work (the idea of sharing sorting work between neighbouring
+/// outputs is that of A. Adams, "Fast median filters using separable sorting
+/// networks", ACM TOG 40(4), 2021; cited from memory).
+///
+/// Every code row is sorted once across its `k` horizontal neighbours
+/// (`row_sort`). Output rows `y` and `y + 1` have `2r` window rows in common;
+/// of those `S = 2r·k` codes, only ranks `m − k ..= m` (`m = k²/2`, the
+/// median's rank) can be the median once the other row's `k` codes join,
+/// because those `k` can move it by at most `k` ranks. `shared` selects those
+/// `k + 1` candidates, sorted, once for both rows; `last` then takes the
+/// median of the candidates and the row each output has alone, both sorted.
+/// By the zero–one principle: with `s` ones among the shared codes and `q`
+/// among the row's own, the candidates hold `c = clamp(s − (m − k), 0, k + 1)`
+/// ones, and `c + q ≥ k + 1` exactly when `s + q ≥ m + 1`, the window median
+/// being 1.
+///
+/// The square engine runs these networks compiled in (`square`); this
+/// generator stays as the test oracle its tables are checked against.
+#[cfg(test)]
+#[derive(Debug)]
+struct PairNetwork {
+    row_sort: Vec<Comparator>,
+    row_ranks: Vec<usize>,
+    shared: Vec<Comparator>,
+    candidates: Vec<usize>,
+    last: Vec<Comparator>,
+    out: usize,
+}
+
+#[cfg(test)]
+impl PairNetwork {
+    fn new(r: usize) -> PairNetwork {
+        let k = 2 * r + 1;
+        let m = k * k / 2;
+        let (row_sort, row_ranks) = selection_network(k, &(0..k).collect::<Vec<_>>());
+        let (shared, candidates) = sorted_group_network(&vec![k; 2 * r], &(m - k..=m).collect::<Vec<_>>());
+        let (last, outs) = sorted_group_network(&[k + 1, k], &[k]);
+        PairNetwork { row_sort, row_ranks, shared, candidates, last, out: outs[0] }
     }
 }
 
@@ -164,11 +215,12 @@ fn padded_code_row(codes: &[u8], w: usize, y: isize, r: usize, border: Border, f
     }
 }
 
-/// Lanes per network run: 25 slots of this many codes stay in L1.
+/// Lanes per network run of the disk engine: its slots (13 for the radius-2
+/// disk) of this many codes stay in L1.
 const PIECE: usize = 1024;
 
 /// The median of `p` over `window` (rows `(row offset, half width)`, radius
-/// `r ∈ {1, 2}`, `disk` naming the shape for the network cache), written into
+/// `r ∈ {1, 2}`, `disk` choosing the disk engine over the square's), written into
 /// `p` itself. Returns false, with `p` untouched, when a sample or the border
 /// fill is not exactly `k / 255`. `codes` is scratch, reused across planes.
 pub(super) fn median_u8_in_place(
@@ -186,7 +238,6 @@ pub(super) fn median_u8_in_place(
         return false;
     }
     let fill = fill[0];
-    let w = p.width();
     codes.resize(p.as_slice().len(), 0);
     const CHUNK: usize = 1 << 16;
     let on_grid = p
@@ -199,8 +250,21 @@ pub(super) fn median_u8_in_place(
         return false;
     }
     let codes: &[u8] = codes;
+    if disk {
+        disk_median(p, codes, window, r, border, fill);
+    } else {
+        square::square_median(p, codes, r, border, fill);
+    }
+    true
+}
+
+/// The disk window's median of the code plane `codes` into `p`: per output
+/// row, each window column is sorted once, then [`ColumnNetwork`] runs on the
+/// sorted columns.
+fn disk_median(p: &mut Plane, codes: &[u8], window: &[(isize, usize)], r: usize, border: Border, fill: u8) {
+    let w = p.width();
     let columns = columns_of(window, r);
-    let network = ColumnNetwork::cached(r, disk, &columns);
+    let network = ColumnNetwork::cached(r, &columns);
     // the column heights in use, each with the network that sorts it fully
     let mut halves: Vec<usize> = columns.iter().map(|&(_, v)| v).collect();
     halves.sort_unstable();
@@ -244,7 +308,6 @@ pub(super) fn median_u8_in_place(
             }
         }
     });
-    true
 }
 
 #[cfg(test)]
@@ -261,28 +324,71 @@ mod tests {
     #[test]
     fn column_networks_select_the_median_of_every_sorted_column_zero_one_input() {
         // The zero–one principle on inputs with sorted columns (see
-        // ColumnNetwork::new), checked exhaustively: the middle output is 1
+        // sorted_group_network), checked exhaustively: the middle output is 1
         // exactly when more than half the inputs are 1.
         for r in [1, 2] {
-            for disk in [false, true] {
-                let columns = columns_of(&window(r, disk), r);
-                let heights: Vec<usize> = columns.iter().map(|&(_, v)| 2 * v + 1).collect();
-                let n: usize = heights.iter().sum();
-                let net = ColumnNetwork::new(columns);
-                let mut inputs = 0;
-                for_each_sorted_input(&heights, |wires| {
-                    let ones = wires.iter().filter(|&&b| b == 1).count();
-                    for c in &net.net {
-                        let (lo, hi) = (wires[c.a].min(wires[c.b]), wires[c.a].max(wires[c.b]));
-                        (wires[c.a], wires[c.b]) = (lo, hi);
-                    }
-                    assert_eq!(wires[net.out] == 1, ones > n / 2, "r={r} disk={disk}");
-                    inputs += 1;
-                });
-                assert_eq!(inputs, heights.iter().map(|h| h + 1).product::<usize>());
-                // sorting the columns first pays: fewer comparators than the plain median network
-                assert!(net.net.len() < selection_network(n, &[n / 2]).0.len(), "r={r} disk={disk}");
-            }
+            let columns = columns_of(&window(r, true), r);
+            let heights: Vec<usize> = columns.iter().map(|&(_, v)| 2 * v + 1).collect();
+            let n: usize = heights.iter().sum();
+            let net = ColumnNetwork::new(columns);
+            let mut inputs = 0;
+            for_each_sorted_input(&heights, |wires| {
+                let ones = wires.iter().filter(|&&b| b == 1).count();
+                run_bits(&net.net, wires);
+                assert_eq!(wires[net.out] == 1, ones > n / 2, "r={r}");
+                inputs += 1;
+            });
+            assert_eq!(inputs, heights.iter().map(|h| h + 1).product::<usize>());
+            // sorting the columns first pays: fewer comparators than the plain median network
+            assert!(net.net.len() < selection_network(n, &[n / 2]).0.len(), "r={r}");
+        }
+    }
+
+    fn run_bits(net: &[Comparator], wires: &mut [u8]) {
+        for c in net {
+            let (lo, hi) = (wires[c.a].min(wires[c.b]), wires[c.a].max(wires[c.b]));
+            (wires[c.a], wires[c.b]) = (lo, hi);
+        }
+    }
+
+    #[test]
+    fn pair_networks_select_the_median_of_every_sorted_row_zero_one_input() {
+        // Every square window whose rows are sorted 0/1 codes: the 2r shared
+        // rows through `shared`, the candidates with the output's own row
+        // through `last`, against the majority. The zero–one principle (see
+        // sorted_group_network) carries this to all codes.
+        for r in [1, 2] {
+            let k = 2 * r + 1;
+            let nets = PairNetwork::new(r);
+            let mut inputs = 0;
+            for_each_sorted_input(&vec![k; 2 * r + 1], |wires| {
+                let ones = wires.iter().filter(|&&b| b == 1).count();
+                let (shared, own) = wires.split_at_mut(2 * r * k);
+                run_bits(&nets.shared, shared);
+                let mut last: Vec<u8> = nets.candidates.iter().map(|&c| shared[c]).collect();
+                assert!(last.is_sorted(), "candidates arrive sorted");
+                last.extend_from_slice(own);
+                run_bits(&nets.last, &mut last);
+                assert_eq!(last[nets.out] == 1, ones > k * k / 2, "r={r}");
+                inputs += 1;
+            });
+            assert_eq!(inputs, (k + 1).pow(k as u32));
+            // the row sort is a full sort: its outputs are the ranks in order
+            let mut codes: Vec<u8> = (0..k as u8).rev().collect();
+            run_bits(&nets.row_sort, &mut codes);
+            let ranked: Vec<u8> = nets.row_ranks.iter().map(|&s| codes[s]).collect();
+            assert_eq!(ranked, (0..k as u8).collect::<Vec<_>>());
+            // sharing pays: per output, fewer comparators than one sorted-column network
+            let columns = columns_of(&window(r, false), r);
+            let one = ColumnNetwork::new(columns).net.len();
+            let per_output = nets.row_sort.len() + nets.shared.len() / 2 + nets.last.len();
+            eprintln!(
+                "r={r}: shared {}, last {}, per output {per_output} against {}",
+                nets.shared.len(),
+                nets.last.len(),
+                one + nets.row_sort.len()
+            );
+            assert!(per_output < one, "r={r}: {per_output} ≥ {one}");
         }
     }
 

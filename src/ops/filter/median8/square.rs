@@ -8,7 +8,7 @@
 
 use multiversion::multiversion;
 
-use super::padded_code_row;
+use super::{padded_code_row, values_of};
 use crate::raster::Plane;
 use crate::tile::{self, Border};
 
@@ -112,7 +112,7 @@ trait SquareNets<const K: usize, const S: usize, const L: usize> {
     /// [`sort_row`] for this radius, compiled for the machine's vector width.
     fn sort_row_dispatch(padded: &[u8], sorted: &mut [Vec<u8>]);
     /// [`median_pair_row`] for this radius, compiled likewise.
-    fn pair_row_dispatch(common: &[&[u8]; S], own: &[[&[u8]; K]; 2], outs: &mut [Option<&mut [f32]>; 2]);
+    fn pair_row_dispatch(common: &[&[u8]; S], own: &[[&[u8]; K]; 2], pair: usize, medians: &mut [Vec<u8>; 2]);
 }
 
 struct Radius1;
@@ -135,8 +135,13 @@ impl SquareNets<3, 6, 7> for Radius1 {
     fn sort_row_dispatch(padded: &[u8], sorted: &mut [Vec<u8>]) {
         sort_row_3(padded, sorted)
     }
-    fn pair_row_dispatch(common: &[&[u8]; 6], own: &[[&[u8]; 3]; 2], outs: &mut [Option<&mut [f32]>; 2]) {
-        pair_row_3(common, own, outs)
+    fn pair_row_dispatch(
+        common: &[&[u8]; 6],
+        own: &[[&[u8]; 3]; 2],
+        pair: usize,
+        medians: &mut [Vec<u8>; 2],
+    ) {
+        pair_row_3(common, own, pair, medians)
     }
 }
 
@@ -146,8 +151,8 @@ fn sort_row_3(padded: &[u8], sorted: &mut [Vec<u8>]) {
 }
 
 #[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-fn pair_row_3(common: &[&[u8]; 6], own: &[[&[u8]; 3]; 2], outs: &mut [Option<&mut [f32]>; 2]) {
-    median_pair_row::<3, 6, 7, Radius1>(common, own, outs)
+fn pair_row_3(common: &[&[u8]; 6], own: &[[&[u8]; 3]; 2], pair: usize, medians: &mut [Vec<u8>; 2]) {
+    median_pair_row::<3, 6, 7, Radius1>(common, own, pair, medians)
 }
 
 struct Radius2;
@@ -170,8 +175,13 @@ impl SquareNets<5, 20, 11> for Radius2 {
     fn sort_row_dispatch(padded: &[u8], sorted: &mut [Vec<u8>]) {
         sort_row_5(padded, sorted)
     }
-    fn pair_row_dispatch(common: &[&[u8]; 20], own: &[[&[u8]; 5]; 2], outs: &mut [Option<&mut [f32]>; 2]) {
-        pair_row_5(common, own, outs)
+    fn pair_row_dispatch(
+        common: &[&[u8]; 20],
+        own: &[[&[u8]; 5]; 2],
+        pair: usize,
+        medians: &mut [Vec<u8>; 2],
+    ) {
+        pair_row_5(common, own, pair, medians)
     }
 }
 
@@ -181,8 +191,8 @@ fn sort_row_5(padded: &[u8], sorted: &mut [Vec<u8>]) {
 }
 
 #[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-fn pair_row_5(common: &[&[u8]; 20], own: &[[&[u8]; 5]; 2], outs: &mut [Option<&mut [f32]>; 2]) {
-    median_pair_row::<5, 20, 11, Radius2>(common, own, outs)
+fn pair_row_5(common: &[&[u8]; 20], own: &[[&[u8]; 5]; 2], pair: usize, medians: &mut [Vec<u8>; 2]) {
+    median_pair_row::<5, 20, 11, Radius2>(common, own, pair, medians)
 }
 
 /// The vector of codes `row[x0..x0 + LANES]`.
@@ -191,17 +201,6 @@ fn load(row: &[u8], x0: usize) -> Lanes {
     let mut v = [0u8; LANES];
     v.copy_from_slice(&row[x0..x0 + LANES]);
     v
-}
-
-/// The first `out.len()` codes of `codes` as values `k / 255`.
-#[inline(always)]
-fn store(codes: &Lanes, out: &mut [f32]) {
-    let mut values = [0f32; LANES];
-    for (v, &c) in values.iter_mut().zip(codes) {
-        *v = f32::from(c) / 255.0;
-    }
-    let n = out.len();
-    out.copy_from_slice(&values[..n]);
 }
 
 /// Sorts each code of the padded code row across its `K` horizontal
@@ -245,6 +244,7 @@ fn median_band<const K: usize, const S: usize, const L: usize, N: SquareNets<K, 
     // held[slot] names the code row a slot holds
     let mut ring: Vec<Vec<Vec<u8>>> = vec![vec![vec![0u8; wide]; K]; ring_len];
     let mut held: Vec<Option<isize>> = vec![None; ring_len];
+    let mut medians = [vec![0u8; wide], vec![0u8; wide]];
     let rows = band.len() / w;
     for i in (0..rows).step_by(2) {
         let y = (y0 + i) as isize;
@@ -262,29 +262,32 @@ fn median_band<const K: usize, const S: usize, const L: usize, N: SquareNets<K, 
             std::array::from_fn(|s| ring[slot_of(y - reach + 1 + (s / K) as isize)][s % K].as_slice());
         let own: [[&[u8]; K]; 2] =
             [y - reach, y + reach + 1].map(|c| std::array::from_fn(|j| ring[slot_of(c)][j].as_slice()));
-        let (first, rest) = band[i * w..].split_at_mut(w);
-        N::pair_row_dispatch(&common, &own, &mut [Some(first), (pair == 2).then(|| &mut rest[..w])]);
+        N::pair_row_dispatch(&common, &own, pair, &mut medians);
+        for (out, codes) in band[i * w..(i + pair) * w].chunks_exact_mut(w).zip(&medians) {
+            values_of(&codes[..w], out);
+        }
     }
 }
 
-/// One pair of output rows `outs` (the second absent at a band's odd end):
-/// the shared network on the `common` rows' ranks, then for each output the
-/// last stage with its `own` row's ranks, 32 columns at a time.
+/// One pair of output rows: the shared network on the `common` rows' ranks,
+/// then for each of the first `pair` outputs the last stage with its `own`
+/// row's ranks, 32 columns at a time, the medians left as codes in `medians`.
+/// (Converting them to values in a separate pass keeps the networks on whole
+/// vectors: fused with the conversion, the compiler splits them in halves.)
 #[inline(always)]
 fn median_pair_row<const K: usize, const S: usize, const L: usize, N: SquareNets<K, S, L>>(
     common: &[&[u8]; S],
     own: &[[&[u8]; K]; 2],
-    outs: &mut [Option<&mut [f32]>; 2],
+    pair: usize,
+    medians: &mut [Vec<u8>; 2],
 ) {
-    let Some(w) = outs[0].as_ref().map(|o| o.len()) else { return };
-    for x0 in (0..w).step_by(LANES) {
+    for x0 in (0..medians[0].len()).step_by(LANES) {
         let mut v = [[0u8; LANES]; S];
         for (lanes, row) in v.iter_mut().zip(common) {
             *lanes = load(row, x0);
         }
         N::shared(&mut v);
-        for (out, own) in outs.iter_mut().zip(own) {
-            let Some(out) = out else { continue };
+        for (codes, own) in medians.iter_mut().zip(own).take(pair) {
             let mut l = [[0u8; LANES]; L];
             for (t, &c) in N::CANDIDATES.iter().enumerate() {
                 l[t] = v[c];
@@ -293,7 +296,7 @@ fn median_pair_row<const K: usize, const S: usize, const L: usize, N: SquareNets
                 l[K + 1 + j] = load(row, x0);
             }
             N::last(&mut l);
-            store(&l[N::OUT], &mut out[x0..(x0 + LANES).min(w)]);
+            codes[x0..x0 + LANES].copy_from_slice(&l[N::OUT]);
         }
     }
 }

@@ -15,6 +15,8 @@
 
 use std::sync::OnceLock;
 
+use multiversion::multiversion;
+
 const DECODE_BREAK: f64 = 0.04045;
 const ENCODE_BREAK: f64 = 0.0031308;
 const SLOPE: f64 = 12.92;
@@ -82,16 +84,23 @@ pub fn decode_in_place(samples: &mut [f32], levels: Option<u32>) {
     }
 }
 
-/// `s ← table[round(s · (N − 1))]`. The saturating cast maps NaN and negative
-/// values to code 0 and `min` caps the rest, so no index is out of bounds.
+/// `s ← table[round(s · (N − 1))]`, for `N` a power of two up to 2¹⁶.
+/// Clamping to `[0, N − 1]` before rounding maps NaN and negative values to
+/// code 0 (`f32::max` drops a NaN) and caps the rest. For an integer
+/// `k < 2²³`, `k + 2²³` is exact and its low mantissa bits are `k`: an index
+/// computed in vector registers (a saturating `as` cast is not), and masked
+/// to the table's size, so no bounds check is left.
+#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
 fn lookup<const N: usize>(samples: &mut [f32], table: &[f32]) {
     let Ok(table) = <&[f32; N]>::try_from(table) else {
         samples.iter_mut().for_each(|s| *s = decode(*s));
         return;
     };
+    debug_assert!(N.is_power_of_two() && N <= 1 << 16);
     let scale = (N - 1) as f32;
     for s in samples {
-        *s = table[((*s * scale + 0.5) as usize).min(N - 1)];
+        let k = (*s * scale + 0.5).max(0.0).min(scale).floor();
+        *s = table[(k + 8_388_608.0).to_bits() as usize & (N - 1)];
     }
 }
 

@@ -4,6 +4,7 @@
 
 use multiversion::multiversion;
 
+use super::rows::{LANES, deinterleave, interleave};
 use crate::raster::Plane;
 use crate::tile::{self, Border};
 
@@ -69,9 +70,6 @@ pub fn kernel(b: ExtendedBox) -> Vec<f32> {
     kernel64(b).iter().map(|&v| v as f32).collect()
 }
 
-/// Rows filtered side by side by the horizontal passes.
-const LANES: usize = 8;
-
 /// One pass in "valid" mode along LANES lines at once: `out[i] = Σ taps ·
 /// inp[i .. i + 2r + 3]` lane by lane, `out.len() = inp.len() − 2r − 2`, by a
 /// running sum in f64 (the sample entering the window added, the one leaving
@@ -96,41 +94,6 @@ fn pass_lanes(inp: &[[f64; LANES]], b: ExtendedBox, out: &mut [[f64; LANES]]) {
         let (lo, hi) = (&inp[i], &inp[i + 2 * r + 2]);
         for l in 0..LANES {
             o[l] = (s[l] + b.alpha * (lo[l] + hi[l])) * inv;
-        }
-    }
-}
-
-/// `lanes[x][l] = rows[l·w + x]` for the rows of `rows` (`w` samples each, at
-/// most LANES rows); lanes past them are left alone. A full group is read
-/// LANES columns at a time, so each lane vector is written whole.
-#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-fn interleave(rows: &[f32], w: usize, lanes: &mut [[f64; LANES]]) {
-    let lanes = &mut lanes[..w];
-    if rows.len() == LANES * w {
-        let r: [&[f32]; LANES] = std::array::from_fn(|l| &rows[l * w..(l + 1) * w]);
-        for (x, e) in lanes.iter_mut().enumerate() {
-            *e = std::array::from_fn(|l| f64::from(r[l][x]));
-        }
-    } else {
-        for (l, row) in rows.chunks_exact(w).enumerate() {
-            for (e, &v) in lanes.iter_mut().zip(row) {
-                e[l] = f64::from(v);
-            }
-        }
-    }
-}
-
-/// `rows[l·w + x] = lanes[x][l]` rounded to f32, for the rows of `rows`: a
-/// block of columns at a time, so the block's lanes stay in L1 while each row
-/// takes its part.
-#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-fn deinterleave(lanes: &[[f64; LANES]], rows: &mut [f32], w: usize) {
-    const BLOCK: usize = 64;
-    for (b, block) in lanes[..w].chunks(BLOCK).enumerate() {
-        for (l, row) in rows.chunks_exact_mut(w).enumerate() {
-            for (o, e) in row[b * BLOCK..].iter_mut().zip(block) {
-                *o = e[l] as f32;
-            }
         }
     }
 }

@@ -137,17 +137,9 @@ fn horizontal(src: &Plane, wx: &Weights, out_w: usize) -> Result<Plane, Error> {
         for (g, group) in band.chunks_mut(out_w * LANES).enumerate() {
             let y = y0 + g * LANES;
             let n = group.len() / out_w;
-            for r in 0..n {
-                for (l, &v) in lanes.iter_mut().zip(src.row(y + r)) {
-                    l[r] = v;
-                }
-            }
+            rows::interleave(&src.as_slice()[y * w..(y + n) * w], w, &mut lanes);
             rows::weighted_gather_lanes(&mut resampled, &lanes, &wx.start, &wx.count, &wx.weights, wx.taps);
-            for (r, row) in group.chunks_exact_mut(out_w).enumerate() {
-                for (o, l) in row.iter_mut().zip(&resampled) {
-                    *o = l[r];
-                }
-            }
+            rows::deinterleave(&resampled, group, out_w);
         }
     });
     Ok(out)

@@ -145,21 +145,19 @@ fn horizontal(src: &Plane, wx: &Weights, out_w: usize) -> Result<Plane, Error> {
     Ok(out)
 }
 
-/// Resamples every column to `out_h` samples, as weighted sums of whole rows.
+/// Resamples every column to `out_h` samples, as weighted sums of whole rows
+/// (one pass per output row, see [`rows::weighted_rows`]).
 fn vertical(src: &Plane, wy: &Weights, out_h: usize) -> Result<Plane, Error> {
     let w = src.width();
     let mut out = Plane::zeros(w, out_h)?;
     tile::for_each_band(&mut out, tile::band_rows(w, 0), |y0, band| {
+        let mut taps: Vec<&[f32]> = Vec::with_capacity(wy.taps);
         for (i, row) in band.chunks_exact_mut(w).enumerate() {
             let y = y0 + i;
-            let start = wy.start[y];
-            for (k, &weight) in wy.of(y).iter().enumerate() {
-                if k == 0 {
-                    rows::scale(row, weight, src.row(start));
-                } else {
-                    rows::add_scaled(row, weight, src.row(start + k));
-                }
-            }
+            let weights = wy.of(y);
+            taps.clear();
+            taps.extend((0..weights.len()).map(|k| src.row(wy.start[y] + k)));
+            rows::weighted_rows(row, weights, &taps);
         }
     });
     Ok(out)

@@ -1,5 +1,6 @@
 //! One channel of an image: `width × height` samples of `f32`, row-major, no padding.
 
+use multiversion::multiversion;
 use rayon::prelude::*;
 
 use super::recycle;
@@ -26,6 +27,14 @@ impl Plane {
     /// A plane of zeros.
     pub fn zeros(width: usize, height: usize) -> Result<Self, Error> {
         Self::filled(width, height, 0.0)
+    }
+
+    /// A plane for a caller that writes every one of its samples before
+    /// reading any: it may be a reused buffer (see [`recycle`]) still holding
+    /// earlier samples, which saves the pass that would clear it.
+    pub fn for_overwrite(width: usize, height: usize) -> Result<Self, Error> {
+        let len = checked_len(width, height)?;
+        Ok(Plane { width, height, data: recycle::for_overwrite(len) })
     }
 
     /// Wraps `data`, which must hold exactly `width * height` samples in row-major order.
@@ -106,8 +115,7 @@ impl Plane {
 
     /// True when no sample is NaN or infinite (checked in parallel).
     pub fn all_finite(&self) -> bool {
-        // a fold without early exit vectorises; chunks still stop early
-        self.data.par_chunks(1 << 16).all(|c| c.iter().fold(true, |ok, v| ok & v.is_finite()))
+        self.data.par_chunks(1 << 16).all(all_finite)
     }
 
     /// Consumes the plane and returns its samples.
@@ -132,6 +140,14 @@ fn checked_len(width: usize, height: usize) -> Result<usize, Error> {
     width
         .checked_mul(height)
         .ok_or_else(|| Error::Internal(format!("a {width}×{height} plane does not fit in memory")))
+}
+
+/// True when every sample of `c` is finite: a fold without early exit
+/// vectorises (the chunks of [`Plane::all_finite`] still stop early),
+/// compiled per instruction set.
+#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
+fn all_finite(c: &[f32]) -> bool {
+    c.iter().fold(true, |ok, v| ok & v.is_finite())
 }
 
 #[cfg(test)]

@@ -82,7 +82,8 @@ pub(super) fn direction(s: &Plane, border: Border, smooth: [f32; 3]) -> Plane {
 /// One band pass: gradient rows, then the magnitude, or the direction in its place.
 fn fused(s: &Plane, border: Border, smooth: [f32; 3], direction: bool) -> Plane {
     let w = s.width();
-    let mut out = Plane::zeros(w, s.height()).unwrap_or_else(|_| unreachable!("same size as a valid plane"));
+    let mut out =
+        Plane::for_overwrite(w, s.height()).unwrap_or_else(|_| unreachable!("same size as a valid plane"));
     tile::for_each_band(&mut out, tile::band_rows(w, 1), |y0, band| {
         let mut rows = GradientRows::new(s, border, smooth);
         let (mut gx, mut gy) = (vec![0.0; w], vec![0.0; w]);

@@ -85,7 +85,7 @@ fn running_box(src: &Plane, r: usize, border: Border) -> Plane {
     let left: Vec<Option<usize>> = (0..r).map(|i| border.index(i as isize - r as isize, w)).collect();
     let right: Vec<Option<usize>> = (0..r).map(|i| border.index((w + i) as isize, w)).collect();
     let fill = f64::from(border.constant_value()) * n;
-    let mut out = Plane::zeros(w, h).unwrap_or_else(|_| unreachable!("same size as a valid plane"));
+    let mut out = Plane::for_overwrite(w, h).unwrap_or_else(|_| unreachable!("same size as a valid plane"));
     tile::for_each_band(&mut out, tile::band_rows(w, r), |y0, band| {
         let row = |y: isize| tile::source_row(src, y, border).unwrap_or(&const_row);
         let mut col = vec![0.0f64; w];
@@ -179,6 +179,18 @@ pub(crate) mod tests {
 
     const BORDERS: [Border; 5] =
         [Border::Reflect, Border::Mirror, Border::Replicate, Border::Wrap, Border::Constant(0.25)];
+
+    #[test]
+    fn a_reused_buffer_holding_nan_leaves_no_trace() {
+        // The output plane may be a recycled buffer with stale samples
+        // (Plane::for_overwrite): every sample must be written. Planes this
+        // large (over recycle::MIN_SAMPLES) are kept while a scope is open.
+        let _reuse = crate::raster::recycle::Scope::open();
+        let (w, h) = (1100, 1000);
+        drop(Plane::filled(w, h, f32::NAN).unwrap());
+        let out = box_mean(&Plane::filled(w, h, 0.5).unwrap(), 5, Border::Reflect);
+        assert!(out.as_slice().iter().all(|&v| v == 0.5));
+    }
 
     #[test]
     fn running_sums_equal_the_naive_mean() {

@@ -59,7 +59,7 @@ pub fn correlate_separable(src: &Plane, kx: &[f32], ky: &[f32], border: Border) 
         b => b,
     };
     let const_row = vec![border.constant_value(); w];
-    let mut out = Plane::zeros(w, h).unwrap_or_else(|_| unreachable!("same size as a valid plane"));
+    let mut out = Plane::for_overwrite(w, h).unwrap_or_else(|_| unreachable!("same size as a valid plane"));
     tile::for_each_band(&mut out, tile::band_rows(w, ry), |y0, band| {
         let mut acc = vec![0.0f32; w];
         let mut padded = vec![0.0f32; w + 2 * rx];

@@ -146,7 +146,7 @@ pub fn cascade_gauss(src: &Plane, b: ExtendedBox, border: Border) -> Plane {
     let right: Vec<Option<usize>> = (0..halo).map(|i| border.index((w + i) as isize, w)).collect();
     // Tall bands, so the halo (read once per band) stays a small overhead.
     let rows = tile::band_rows(w, 0).max(4 * halo);
-    let mut out = Plane::zeros(w, h).unwrap_or_else(|_| unreachable!("same size as a valid plane"));
+    let mut out = Plane::for_overwrite(w, h).unwrap_or_else(|_| unreachable!("same size as a valid plane"));
     tile::for_each_band(&mut out, rows, |y0, band| {
         let nb = band.len() / w;
         // Vertical, one strip of columns at a time so a strip's two buffers

@@ -130,7 +130,7 @@ impl Resampler {
 fn horizontal(src: &Plane, wx: &Weights, out_w: usize) -> Result<Plane, Error> {
     use rows::LANES;
     let w = src.width();
-    let mut out = Plane::zeros(out_w, src.height())?;
+    let mut out = Plane::for_overwrite(out_w, src.height())?;
     tile::for_each_band(&mut out, tile::band_rows(out_w, 0).next_multiple_of(LANES), |y0, band| {
         let mut lanes = vec![[0.0f32; LANES]; w];
         let mut resampled = vec![[0.0f32; LANES]; out_w];
@@ -316,6 +316,19 @@ mod tests {
                 }
             }
         }
+    }
+
+    #[test]
+    fn reused_buffers_holding_nan_leave_no_trace() {
+        // Both passes write into planes that may be recycled buffers with
+        // stale samples (Plane::for_overwrite); a scope keeps planes this large.
+        let _reuse = crate::raster::recycle::Scope::open();
+        let (w, h) = (1100, 1000);
+        for (sw, sh) in [(2 * w, 2 * h), (2 * w, h), (w, 2 * h)] {
+            drop(Plane::filled(sw, sh, f32::NAN).unwrap());
+        }
+        let out = resize("resize:scale=2,filter=lanczos3", gray(w, h, |_, _| 0.25));
+        assert!(out.planes()[0].as_slice().iter().all(|v| (v - 0.25).abs() < 1e-6));
     }
 
     #[test]

@@ -115,85 +115,67 @@ trait SquareNets<const K: usize, const S: usize, const L: usize> {
     fn pair_row_dispatch(common: &[&[u8]; S], own: &[[&[u8]; K]; 2], pair: usize, medians: &mut [Vec<u8>; 2]);
 }
 
-struct Radius1;
+/// Implements [`SquareNets`] for `$radius` from its compiled networks, with
+/// the two entry points compiled per instruction set.
+macro_rules! square_nets {
+    ($radius:ident, $k:literal, $s:literal, $l:literal, $candidates:expr, $out:literal,
+     $row_sort:ident, $shared:ident, $last:ident, $sort_row:ident, $pair_row:ident) => {
+        struct $radius;
 
-impl SquareNets<3, 6, 7> for Radius1 {
-    const CANDIDATES: &'static [usize] = &[1, 2, 3, 4];
-    const OUT: usize = 3;
-    #[inline(always)]
-    fn row_sort(v: &mut [Lanes; 3]) {
-        row_sort_3(v)
-    }
-    #[inline(always)]
-    fn shared(v: &mut [Lanes; 6]) {
-        shared_3(v)
-    }
-    #[inline(always)]
-    fn last(v: &mut [Lanes; 7]) {
-        last_3(v)
-    }
-    fn sort_row_dispatch(padded: &[u8], sorted: &mut [Vec<u8>]) {
-        sort_row_3(padded, sorted)
-    }
-    fn pair_row_dispatch(
-        common: &[&[u8]; 6],
-        own: &[[&[u8]; 3]; 2],
-        pair: usize,
-        medians: &mut [Vec<u8>; 2],
-    ) {
-        pair_row_3(common, own, pair, medians)
-    }
+        impl SquareNets<$k, $s, $l> for $radius {
+            const CANDIDATES: &'static [usize] = $candidates;
+            const OUT: usize = $out;
+            #[inline(always)]
+            fn row_sort(v: &mut [Lanes; $k]) {
+                $row_sort(v)
+            }
+            #[inline(always)]
+            fn shared(v: &mut [Lanes; $s]) {
+                $shared(v)
+            }
+            #[inline(always)]
+            fn last(v: &mut [Lanes; $l]) {
+                $last(v)
+            }
+            fn sort_row_dispatch(padded: &[u8], sorted: &mut [Vec<u8>]) {
+                $sort_row(padded, sorted)
+            }
+            fn pair_row_dispatch(
+                common: &[&[u8]; $s],
+                own: &[[&[u8]; $k]; 2],
+                pair: usize,
+                medians: &mut [Vec<u8>; 2],
+            ) {
+                $pair_row(common, own, pair, medians)
+            }
+        }
+
+        #[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
+        fn $sort_row(padded: &[u8], sorted: &mut [Vec<u8>]) {
+            sort_row::<$k, $s, $l, $radius>(padded, sorted)
+        }
+
+        #[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
+        fn $pair_row(common: &[&[u8]; $s], own: &[[&[u8]; $k]; 2], pair: usize, medians: &mut [Vec<u8>; 2]) {
+            median_pair_row::<$k, $s, $l, $radius>(common, own, pair, medians)
+        }
+    };
 }
 
-#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-fn sort_row_3(padded: &[u8], sorted: &mut [Vec<u8>]) {
-    sort_row::<3, 6, 7, Radius1>(padded, sorted)
-}
-
-#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-fn pair_row_3(common: &[&[u8]; 6], own: &[[&[u8]; 3]; 2], pair: usize, medians: &mut [Vec<u8>; 2]) {
-    median_pair_row::<3, 6, 7, Radius1>(common, own, pair, medians)
-}
-
-struct Radius2;
-
-impl SquareNets<5, 20, 11> for Radius2 {
-    const CANDIDATES: &'static [usize] = &[7, 8, 9, 10, 11, 12];
-    const OUT: usize = 5;
-    #[inline(always)]
-    fn row_sort(v: &mut [Lanes; 5]) {
-        row_sort_5(v)
-    }
-    #[inline(always)]
-    fn shared(v: &mut [Lanes; 20]) {
-        shared_5(v)
-    }
-    #[inline(always)]
-    fn last(v: &mut [Lanes; 11]) {
-        last_5(v)
-    }
-    fn sort_row_dispatch(padded: &[u8], sorted: &mut [Vec<u8>]) {
-        sort_row_5(padded, sorted)
-    }
-    fn pair_row_dispatch(
-        common: &[&[u8]; 20],
-        own: &[[&[u8]; 5]; 2],
-        pair: usize,
-        medians: &mut [Vec<u8>; 2],
-    ) {
-        pair_row_5(common, own, pair, medians)
-    }
-}
-
-#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-fn sort_row_5(padded: &[u8], sorted: &mut [Vec<u8>]) {
-    sort_row::<5, 20, 11, Radius2>(padded, sorted)
-}
-
-#[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-fn pair_row_5(common: &[&[u8]; 20], own: &[[&[u8]; 5]; 2], pair: usize, medians: &mut [Vec<u8>; 2]) {
-    median_pair_row::<5, 20, 11, Radius2>(common, own, pair, medians)
-}
+square_nets!(Radius1, 3, 6, 7, &[1, 2, 3, 4], 3, row_sort_3, shared_3, last_3, sort_row_3, pair_row_3);
+square_nets!(
+    Radius2,
+    5,
+    20,
+    11,
+    &[7, 8, 9, 10, 11, 12],
+    5,
+    row_sort_5,
+    shared_5,
+    last_5,
+    sort_row_5,
+    pair_row_5
+);
 
 /// The vector of codes `row[x0..x0 + LANES]`.
 #[inline(always)]

@@ -57,10 +57,9 @@ impl Plane {
         height: usize,
         f: impl Fn(usize, &mut [f32]) + Sync,
     ) -> Result<Self, Error> {
-        let len = checked_len(width, height)?;
-        let mut data = recycle::for_overwrite(len);
-        data.par_chunks_mut(width).enumerate().for_each(|(y, row)| f(y, row));
-        Ok(Plane { width, height, data })
+        let mut p = Self::for_overwrite(width, height)?;
+        p.data.par_chunks_mut(width).enumerate().for_each(|(y, row)| f(y, row));
+        Ok(p)
     }
 
     /// A plane whose sample at `(x, y)` is `f(x, y)`.

@@ -1,8 +1,10 @@
 //! The 8-bit engine of `median` for radius 1 and 2: the plane is turned into
-//! u8 codes once, each window column is sorted once per output row, and a
-//! comparator network pruned for sorted columns runs on u8 lanes; the result is
-//! written back into the plane's own buffer. It does not decide when it
-//! applies beyond checking that every sample is on the 255 grid.
+//! u8 codes once, then comparator networks pruned for inputs that arrive in
+//! sorted groups run on u8 lanes — for the square (`square`), each code row
+//! sorted once across its neighbours and two output rows sharing the rows they
+//! have in common; for the disk, each window column sorted once per output
+//! row. The result is written back into the plane's own buffer. It does not
+//! decide when it applies beyond checking that every sample is on the 255 grid.
 
 mod square;
 
@@ -373,21 +375,20 @@ mod tests {
                 inputs += 1;
             });
             assert_eq!(inputs, (k + 1).pow(k as u32));
-            // the row sort is a full sort: its outputs are the ranks in order
-            let mut codes: Vec<u8> = (0..k as u8).rev().collect();
-            run_bits(&nets.row_sort, &mut codes);
-            let ranked: Vec<u8> = nets.row_ranks.iter().map(|&s| codes[s]).collect();
-            assert_eq!(ranked, (0..k as u8).collect::<Vec<_>>());
+            // the row sort is a full sort: on every 0/1 input (zero–one
+            // principle) its outputs are the ranks in order
+            for bits in 0u32..1 << k {
+                let mut codes: Vec<u8> = (0..k).map(|i| u8::from(bits >> i & 1 == 1)).collect();
+                let mut want = codes.clone();
+                want.sort_unstable();
+                run_bits(&nets.row_sort, &mut codes);
+                let ranked: Vec<u8> = nets.row_ranks.iter().map(|&s| codes[s]).collect();
+                assert_eq!(ranked, want, "r={r} bits={bits:b}");
+            }
             // sharing pays: per output, fewer comparators than one sorted-column network
             let columns = columns_of(&window(r, false), r);
             let one = ColumnNetwork::new(columns).net.len();
             let per_output = nets.row_sort.len() + nets.shared.len() / 2 + nets.last.len();
-            eprintln!(
-                "r={r}: shared {}, last {}, per output {per_output} against {}",
-                nets.shared.len(),
-                nets.last.len(),
-                one + nets.row_sort.len()
-            );
             assert!(per_output < one, "r={r}: {per_output} ≥ {one}");
         }
     }

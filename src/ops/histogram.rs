@@ -95,18 +95,30 @@ pub const CODE_BLOCK: usize = 1024;
 /// [`CODE_BLOCK`]) to `codes` and says whether every sample was finite. The
 /// loop has no branches, so it compiles to vector instructions; the callers
 /// fall back to their per-sample path for a block holding NaN or ±∞.
-#[inline]
+#[multiversion::multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
 pub fn codes_of_block(samples: &[f32], n: u32, codes: &mut [u16; CODE_BLOCK]) -> bool {
     let nf = n as f32;
     let mut finite = true;
     for (c, &v) in codes.iter_mut().zip(samples) {
         // Equal to code_index for every f32: clamping to 0..=n before the
         // truncation gives the same integer as clamping after it, NaN included
-        // (NaN.max(0) = 0).
-        *c = ((v * nf) + 0.5).max(0.0).min(nf) as u16;
+        // (NaN.max(0) = 0), and the truncation of t ≥ 0 is its floor.
+        *c = floor_small(((v * nf) + 0.5).max(0.0).min(nf)) as u16;
         finite &= v.is_finite();
     }
     finite
+}
+
+/// ⌊t⌋ of `0 ≤ t < 2²²` by float arithmetic alone: adding 2²³ rounds t to the
+/// nearest integer and leaves it in the low mantissa bits; one is taken off
+/// where that rounded up. Unlike a saturating float-to-integer cast it
+/// compiles to plain vector instructions in the loops that call it.
+#[inline(always)]
+pub fn floor_small(t: f32) -> u32 {
+    const MAGIC: f32 = 8_388_608.0;
+    let nearest = (t + MAGIC) - MAGIC;
+    let floor = if nearest > t { nearest - 1.0 } else { nearest };
+    (floor + MAGIC).to_bits() & 0x7F_FFFF
 }
 
 /// The smallest and largest finite sample of `planes`, or `None` if there is none.
@@ -260,6 +272,22 @@ mod tests {
     //! percentiles at 0 and 100, values on the top edge of a range, every
     //! 8- and 16-bit code in its own bin, values outside 0..1 in the end bins.
     use super::*;
+
+    #[test]
+    fn floor_small_is_the_floor() {
+        // Integers, halves (where rounding to nearest goes up or to even),
+        // the float just below each, and the top of the range.
+        let mut values = vec![0.0f32, 1e-30, 0.49999997, 4_194_303.5, 4_194_303.75];
+        for k in (0..70_000u32).step_by(7).chain([65_535, 65_536]) {
+            let k = k as f32;
+            for t in [k, k + 0.5, k + 0.25, k + 0.75] {
+                values.extend([t, f32::from_bits(t.to_bits().saturating_sub(1))]);
+            }
+        }
+        for t in values {
+            assert_eq!(floor_small(t), t.floor() as u32, "{t}");
+        }
+    }
 
     #[test]
     fn codes_give_exact_percentiles_like_numpy() {

@@ -823,16 +823,11 @@ impl Clahe {
         let lanes = if bins <= 4096 { 4 } else { 1 };
         let stride = bins + 1;
         let mut counts = vec![0u64; lanes * stride];
-        // Bins a block at a time (a branch-free loop the compiler vectorises),
-        // NaN to the spare last slot.
-        let (scale, last) = (bins as f32, (bins - 1) as u32);
+        // Bins a block at a time, NaN to the spare last slot.
         let mut slots = [0u32; histogram::CODE_BLOCK];
         for y in y0..y1 {
             for segment in p.row(y)[x0..x1].chunks(histogram::CODE_BLOCK) {
-                for (s, &v) in slots.iter_mut().zip(segment) {
-                    let b = unit_bin(v, scale, last);
-                    *s = if v.is_nan() { bins as u32 } else { b };
-                }
+                bins_of_segment(segment, bins, &mut slots);
                 let mut groups = slots[..segment.len()].chunks_exact(lanes);
                 for g in &mut groups {
                     for (lane, &b) in g.iter().enumerate() {
@@ -872,6 +867,12 @@ impl Clahe {
     }
 
     fn plane(&self, p: &mut crate::raster::Plane) {
+        self.plane_with(p, None)
+    }
+
+    /// [`Clahe::plane`], with the choice of blending the maps once per row
+    /// forced (`Some`) or left to the sizes (`None`).
+    fn plane_with(&self, p: &mut crate::raster::Plane, blend_rows: Option<bool>) {
         let (w, h) = (p.width(), p.height());
         let (xs, ys) = (self.spans(w), self.spans(h));
         let bins = self.bins;
@@ -915,13 +916,27 @@ impl Clahe {
         let tx = xs.len();
         let map = |ty: usize, t: usize| &maps[(ty * tx + t) * bins..(ty * tx + t + 1) * bins];
         // Each output sample depends on its own input sample and its position
-        // only, so the maps are applied in place.
+        // only, so the maps are applied in place. Where a row has more samples
+        // than its tile columns' maps have bins, the maps are first blended
+        // between the two tile rows once for the row.
+        let blend_rows = blend_rows.unwrap_or(tx * bins <= w);
         tile::for_each_band(p, tile::band_rows(w, 0), |y0, band| {
+            let mut row_maps = if blend_rows { vec![0.0f32; tx * bins] } else { Vec::new() };
             for (by, row) in band.chunks_exact_mut(w).enumerate() {
                 let (ty0, ty1, fy) = ny[y0 + by];
-                for &(xa, xb, t0, t1) in &runs {
-                    let maps = [map(ty0, t0), map(ty0, t1), map(ty1, t0), map(ty1, t1)];
-                    interpolate_run(&mut row[xa..xb], &fx[xa..xb], maps, fy);
+                if blend_rows {
+                    for (t, out) in row_maps.chunks_exact_mut(bins).enumerate() {
+                        blend_maps(out, map(ty0, t), map(ty1, t), fy);
+                    }
+                    let column = |t: usize| &row_maps[t * bins..(t + 1) * bins];
+                    for &(xa, xb, t0, t1) in &runs {
+                        interpolate_run_between(&mut row[xa..xb], &fx[xa..xb], column(t0), column(t1));
+                    }
+                } else {
+                    for &(xa, xb, t0, t1) in &runs {
+                        let maps = [map(ty0, t0), map(ty0, t1), map(ty1, t0), map(ty1, t1)];
+                        interpolate_run(&mut row[xa..xb], &fx[xa..xb], maps, fy);
+                    }
                 }
             }
         });
@@ -930,17 +945,39 @@ impl Clahe {
 
 /// The bin of `v` among `last + 1` equal bins over [0, 1]: floor(v·bins)
 /// clamped to 0..=last (values below 0 and NaN in bin 0, values from 1 up in
-/// the last; through u32, whose saturation clamps the same way).
+/// the last; clamping before the floor gives the same bin, as `last` is an
+/// integer).
 #[inline(always)]
 fn unit_bin(v: f32, scale: f32, last: u32) -> u32 {
-    ((v * scale).max(0.0) as u32).min(last)
+    histogram::floor_small((v * scale).max(0.0).min(last as f32))
+}
+
+/// The [`unit_bin`] of each sample of `segment` (at most
+/// [`histogram::CODE_BLOCK`]) among `bins` bins, NaN to the spare slot `bins`.
+/// Branch-free, so it compiles to vector instructions (run-time dispatch).
+#[multiversion::multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
+fn bins_of_segment(segment: &[f32], bins: usize, slots: &mut [u32; histogram::CODE_BLOCK]) {
+    let (scale, last) = (bins as f32, (bins - 1) as u32);
+    for (s, &v) in slots.iter_mut().zip(segment) {
+        let b = unit_bin(v, scale, last);
+        *s = if v.is_nan() { bins as u32 } else { b };
+    }
+}
+
+/// One tile map interpolated between two tile rows: `out = top + (bottom −
+/// top)·fy` per bin, the first half of [`interpolate_run`]'s arithmetic, so
+/// [`interpolate_run_between`] on these gives the same result to the bit.
+fn blend_maps(out: &mut [f32], top: &[f32], bottom: &[f32], fy: f32) {
+    for ((o, &t), &b) in out.iter_mut().zip(top).zip(bottom) {
+        *o = t + (b - t) * fy;
+    }
 }
 
 /// Maps one run of a row, whose columns lie between the same two tile centres,
 /// through the four tile maps `[top left, top right, bottom left, bottom
 /// right]` (each `bins` long) with bilinear weights `fx` (per column) and `fy`:
-/// top = m00 + (m01 − m00)·fx, bottom = m10 + (m11 − m10)·fx, out = top +
-/// (bottom − top)·fy. NaN stays NaN. Branch-free, so it compiles to vector
+/// left = m00 + (m10 − m00)·fy, right = m01 + (m11 − m01)·fy, out = left +
+/// (right − left)·fx. NaN stays NaN. Branch-free, so it compiles to vector
 /// gathers where the CPU has them (run-time dispatch; no fused multiply-add,
 /// so every CPU gives the same result). Bins as in [`unit_bin`].
 #[multiversion::multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
@@ -948,13 +985,33 @@ fn interpolate_run(row: &mut [f32], fx: &[f32], maps: [&[f32]; 4], fy: f32) {
     let [m00, m01, m10, m11] = maps;
     let bins = m00.len();
     let (m01, m10, m11) = (&m01[..bins], &m10[..bins], &m11[..bins]);
-    let (scale, last) = (bins as f32, bins.saturating_sub(1) as u32);
+    let Some(last) = bins.checked_sub(1) else { return };
+    let scale = bins as f32;
     for (o, &fx) in row.iter_mut().zip(fx) {
         let v = *o;
-        let b = unit_bin(v, scale, last) as usize;
-        let top = m00[b] + (m01[b] - m00[b]) * fx;
-        let bottom = m10[b] + (m11[b] - m10[b]) * fx;
-        let out = top + (bottom - top) * fy;
+        // The min is a no-op (unit_bin stays within `last`) that shows the
+        // compiler the index is in bounds.
+        let b = (unit_bin(v, scale, last as u32) as usize).min(last);
+        let left = m00[b] + (m10[b] - m00[b]) * fy;
+        let right = m01[b] + (m11[b] - m01[b]) * fy;
+        let out = left + (right - left) * fx;
+        *o = if v.is_nan() { v } else { out };
+    }
+}
+
+/// [`interpolate_run`] with the maps of the left and right tile columns
+/// already interpolated between the tile rows ([`blend_maps`]): two lookups
+/// per sample instead of four.
+#[multiversion::multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
+fn interpolate_run_between(row: &mut [f32], fx: &[f32], left: &[f32], right: &[f32]) {
+    let bins = left.len();
+    let right = &right[..bins];
+    let Some(last) = bins.checked_sub(1) else { return };
+    let scale = bins as f32;
+    for (o, &fx) in row.iter_mut().zip(fx) {
+        let v = *o;
+        let b = (unit_bin(v, scale, last as u32) as usize).min(last);
+        let out = left[b] + (right[b] - left[b]) * fx;
         *o = if v.is_nan() { v } else { out };
     }
 }
@@ -1417,6 +1474,44 @@ mod tests {
         }
         let serial = rayon::ThreadPoolBuilder::new().num_threads(1).build().unwrap();
         assert_eq!(serial.install(|| run("clahe:tiles=4,clip=0.02", r)).planes(), out.planes());
+    }
+
+    #[test]
+    fn unit_bin_is_the_clamped_floor() {
+        for bins in [2u32, 256, 65536] {
+            let (scale, last) = (bins as f32, bins - 1);
+            let mut values = vec![f32::NAN, f32::INFINITY, f32::NEG_INFINITY, -1.0, -0.0, 1.0, 7.5, f32::MAX];
+            values.extend((0..=bins).flat_map(|k| {
+                let v = k as f32 / bins as f32;
+                [v, f32::from_bits(v.to_bits().saturating_sub(1)), f32::from_bits(v.to_bits() + 1)]
+            }));
+            for v in values {
+                let expected =
+                    if v.is_nan() { 0 } else { ((v * scale).floor().max(0.0).min(last as f32)) as u32 };
+                assert_eq!(unit_bin(v, scale, last), expected, "{v} among {bins}");
+            }
+        }
+    }
+
+    #[test]
+    fn clahe_blended_row_maps_equal_the_four_map_lookup() {
+        // The two interpolation paths (maps blended once per row, or four
+        // lookups per sample) share their arithmetic, so agree to the bit,
+        // NaN and out-of-range samples included.
+        let p = Plane::from_fn(230, 90, |x, y| match (x * 31 + y * 17) % 97 {
+            0 => f32::NAN,
+            1 => -0.5,
+            2 => 1.5,
+            k => k as f32 / 96.0,
+        })
+        .unwrap();
+        for (tiles, bins) in [(4, 16), (5, 256), (1, 2)] {
+            let op = Clahe::new(tiles, 0.03, bins, false, Lightness::Luma).unwrap();
+            let (mut a, mut b) = (p.clone(), p.clone());
+            op.plane_with(&mut a, Some(true));
+            op.plane_with(&mut b, Some(false));
+            assert!(a.as_slice().iter().zip(b.as_slice()).all(|(x, y)| x.to_bits() == y.to_bits()));
+        }
     }
 
     fn worst(a: &Plane, b: &Plane) -> (f32, usize, usize) {

@@ -89,13 +89,25 @@ pub fn weighted_gather_lanes(
     taps: usize,
 ) {
     for (((o, &s), &n), w) in out.iter_mut().zip(start).zip(count).zip(weights.chunks_exact(taps)) {
-        let mut acc = [0.0f32; LANES];
-        for (a, &wk) in input[s..s + n].iter().zip(&w[..n]) {
-            for r in 0..LANES {
-                acc[r] += wk * a[r];
+        let (input, w) = (&input[s..s + n], &w[..n]);
+        let mut acc = [[0.0f32; LANES]; 4];
+        let mut quads = input.chunks_exact(4).zip(w.chunks_exact(4));
+        for (a, wk) in &mut quads {
+            for j in 0..4 {
+                for r in 0..LANES {
+                    acc[j][r] += wk[j] * a[j][r];
+                }
             }
         }
-        *o = acc;
+        let done = n - n % 4;
+        for (j, (a, &wk)) in input[done..].iter().zip(&w[done..]).enumerate() {
+            for r in 0..LANES {
+                acc[j][r] += wk * a[r];
+            }
+        }
+        for r in 0..LANES {
+            o[r] = (acc[0][r] + acc[1][r]) + (acc[2][r] + acc[3][r]);
+        }
     }
 }
 

@@ -23,3 +23,7 @@ mod suggest;
 pub mod tile;
 
 pub use error::Error;
+
+/// Large blocks are advised to be huge pages (see `raster::huge_pages`).
+#[global_allocator]
+static ALLOCATOR: raster::huge_pages::Advising = raster::huge_pages::Advising;

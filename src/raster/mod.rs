@@ -1,6 +1,7 @@
 //! The in-memory image: planar `f32` channels, what the numbers mean (layout and
 //! encoding) and the metadata carried from the source. No codec or operator logic.
 
+pub(crate) mod huge_pages;
 mod plane;
 pub(crate) mod recycle;
 pub mod transform;

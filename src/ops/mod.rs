@@ -66,11 +66,23 @@ pub trait Operator: Send + Sync {
 
     /// Runs the operator.
     fn apply(&self, raster: Raster) -> Result<Raster, Error>;
+
+    /// Runs the operator on `raster` as it would be after `maps` (point
+    /// functions the pipeline has not run yet, in order) were applied to its
+    /// colour samples. By default that is one pass of the maps, then
+    /// [`Operator::apply`]; an operator that reads each source sample once can
+    /// apply the maps as it reads instead, saving that pass over memory, and
+    /// must give the same result to the bit.
+    fn apply_after_maps(&self, raster: Raster, maps: &[&dyn SampleMap]) -> Result<Raster, Error> {
+        self.apply(apply_sample_maps(raster, maps))
+    }
 }
 
 /// A function applied to each colour sample independently (alpha untouched).
 pub trait SampleMap: Send + Sync {
-    /// Maps every sample of `samples` in place.
+    /// Maps every sample of `samples` in place. Each output sample depends on
+    /// its own input sample only, so any split of a plane into slices gives
+    /// the same result.
     fn map(&self, samples: &mut [f32]);
 }
 

@@ -1,6 +1,8 @@
 //! Running a pipeline: converts between linear light and sRGB-encoded values only
 //! when the next step needs the other domain, and runs each stretch of
-//! consecutive point functions (domain conversions included) as one pass.
+//! consecutive point functions (domain conversions included) as one pass, or
+//! hands it to the next step to run as it reads its source
+//! ([`crate::ops::Operator::apply_after_maps`]).
 
 use std::str::FromStr;
 
@@ -119,10 +121,12 @@ impl Pipeline {
                     )),
                 });
             }
-            raster = flush(raster, &mut pending);
             let keeps_levels = step.op.moves_samples_only();
             let levels = raster.levels;
-            raster = step.op.apply(raster).map_err(|error| StepFailure { index, error })?;
+            let maps: Vec<&dyn SampleMap> = pending.iter().map(Pending::as_map).collect();
+            raster = step.op.apply_after_maps(raster, &maps).map_err(|error| StepFailure { index, error })?;
+            drop(maps);
+            pending.clear();
             raster.levels = if keeps_levels { levels } else { None };
         }
         Ok(flush(raster, &mut pending))

@@ -5,7 +5,7 @@ use super::{Anchor, Rect};
 use crate::error::{Error, ParamError};
 use crate::ops::filter::rows;
 use crate::ops::params::{Args, Kind, OpSpec, ParamSpec};
-use crate::ops::{Domain, Operator, filter_planes};
+use crate::ops::{Domain, Operator, SampleMap, apply_sample_maps, filter_planes};
 use crate::raster::{Plane, Raster};
 use crate::tile;
 
@@ -99,35 +99,50 @@ impl Resize {
 pub struct Resampler {
     wx: Weights,
     wy: Weights,
+    w: usize,
+    h: usize,
     out_w: usize,
     out_h: usize,
 }
 
 impl Resampler {
     pub fn new(w: usize, h: usize, out_w: usize, out_h: usize, filter: Filter) -> Resampler {
-        Resampler { wx: Weights::new(w, out_w, filter), wy: Weights::new(h, out_h, filter), out_w, out_h }
+        let (wx, wy) = (Weights::new(w, out_w, filter), Weights::new(h, out_h, filter));
+        Resampler { wx, wy, w, h, out_w, out_h }
     }
 
-    /// Resamples one plane (of the size given to [`Resampler::new`]).
-    pub fn plane(&self, src: &Plane) -> Result<Plane, Error> {
-        let (w, h) = (src.width(), src.height());
+    /// Whether rows are resampled first (fewer multiply-adds that way, or as
+    /// many): then each source sample is read once, by [`horizontal`].
+    fn rows_first(&self) -> bool {
+        let (w, h, out_w, out_h) = (self.w, self.h, self.out_w, self.out_h);
+        // Multiply-adds of each order.
+        let horizontal_first = h * out_w * self.wx.taps + out_h * out_w * self.wy.taps;
+        let vertical_first = out_h * w * self.wy.taps + out_h * out_w * self.wx.taps;
+        horizontal_first <= vertical_first
+    }
+
+    /// Resamples one plane (of the size given to [`Resampler::new`]), taking
+    /// the cheaper order of the two passes. `maps` (point functions, in order)
+    /// are applied to the source samples as they are read; they must be empty
+    /// unless rows go first ([`Resampler::rows_first`]).
+    pub fn plane(&self, src: &Plane, maps: &[&dyn SampleMap]) -> Result<Plane, Error> {
         let (wx, wy, out_w, out_h) = (&self.wx, &self.wy, self.out_w, self.out_h);
-        // Multiply-adds of each order; take the cheaper.
-        let columns_first = h * out_w * wx.taps + out_h * out_w * wy.taps;
-        let rows_first = out_h * w * wy.taps + out_h * out_w * wx.taps;
-        if columns_first <= rows_first {
-            let mid = horizontal(src, wx, out_w)?;
+        if self.rows_first() {
+            let mid = horizontal(src, wx, out_w, maps)?;
             vertical(&mid, wy, out_h)
         } else {
+            debug_assert!(maps.is_empty(), "point functions are applied only by the row pass");
             let mid = vertical(src, wy, out_h)?;
-            horizontal(&mid, wx, out_w)
+            horizontal(&mid, wx, out_w, &[])
         }
     }
 }
 
 /// Resamples every row to `out_w` samples, [`rows::LANES`] rows at a time:
-/// they are interleaved into lane vectors, resampled together, and written back.
-fn horizontal(src: &Plane, wx: &Weights, out_w: usize) -> Result<Plane, Error> {
+/// they are interleaved into lane vectors, resampled together, and written
+/// back. `maps` run on the interleaved lanes (in cache, so the point
+/// functions cost no pass over memory of their own).
+fn horizontal(src: &Plane, wx: &Weights, out_w: usize, maps: &[&dyn SampleMap]) -> Result<Plane, Error> {
     use rows::LANES;
     let w = src.width();
     let mut out = Plane::for_overwrite(out_w, src.height())?;
@@ -138,6 +153,9 @@ fn horizontal(src: &Plane, wx: &Weights, out_w: usize) -> Result<Plane, Error> {
             let y = y0 + g * LANES;
             let n = group.len() / out_w;
             rows::interleave(&src.as_slice()[y * w..(y + n) * w], w, &mut lanes);
+            // Lanes past the n-th row (in a last, short group) hold stale
+            // values; mapping them is harmless, as they are never written out.
+            maps.iter().for_each(|m| m.map(lanes.as_flattened_mut()));
             rows::weighted_gather_lanes(&mut resampled, &lanes, &wx.start, &wx.count, &wx.weights, wx.taps);
             rows::deinterleave(&resampled, group, out_w);
         }
@@ -178,6 +196,20 @@ impl Operator for Resize {
     }
 
     fn apply(&self, raster: Raster) -> Result<Raster, Error> {
+        self.resize(raster, &[])
+    }
+
+    fn apply_after_maps(&self, raster: Raster, maps: &[&dyn SampleMap]) -> Result<Raster, Error> {
+        self.resize(raster, maps)
+    }
+}
+
+impl Resize {
+    /// Resizes the raster as it is after `maps`. Pending point functions (the
+    /// conversion to linear light, for one) are applied as the row pass reads
+    /// its source when rows go first and there is no alpha to premultiply
+    /// after them; otherwise in a pass of their own first.
+    fn resize(&self, raster: Raster, maps: &[&dyn SampleMap]) -> Result<Raster, Error> {
         let (w, h) = (raster.width(), raster.height());
         let ((rw, rh), crop) = self.plan(w, h);
         let mut meta = raster.metadata.clone();
@@ -188,12 +220,15 @@ impl Operator for Resize {
         }
         let filter = self.filter;
         let resampler = Resampler::new(w, h, rw, rh, filter);
+        let fuses = filter != Filter::Nearest && !raster.layout().has_alpha() && resampler.rows_first();
+        let (raster, maps) = if fuses { (raster, maps) } else { (apply_sample_maps(raster, maps), &[][..]) };
         let resized = if filter == Filter::Nearest {
             let layout = raster.layout();
-            let planes = raster.planes().iter().map(|p| resampler.plane(p)).collect::<Result<_, _>>()?;
+            let planes =
+                raster.planes().iter().map(|p| resampler.plane(p, maps)).collect::<Result<_, _>>()?;
             raster.with_planes(planes, layout)?
         } else {
-            filter_planes(raster, |p| resampler.plane(p))?
+            filter_planes(raster, |p| resampler.plane(p, maps))?
         };
         let mut out = match crop {
             Some(rect) => {
@@ -329,6 +364,48 @@ mod tests {
         }
         let out = resize("resize:scale=2,filter=lanczos3", gray(w, h, |_, _| 0.25));
         assert!(out.planes()[0].as_slice().iter().all(|v| (v - 0.25).abs() < 1e-6));
+    }
+
+    /// A point function for the tests: v ↦ v² + 0.1.
+    struct SquarePlus;
+
+    impl SampleMap for SquarePlus {
+        fn map(&self, samples: &mut [f32]) {
+            samples.iter_mut().for_each(|v| *v = *v * *v + 0.1);
+        }
+    }
+
+    #[test]
+    fn point_functions_applied_while_reading_equal_a_pass_of_their_own() {
+        // Rows first (fused: the maps run on the interleaved lanes, a short
+        // last group of rows included), columns first, with alpha, and nearest.
+        let planes = |n: usize| {
+            (0..n)
+                .map(|c| Plane::from_fn(37, 29, |x, y| ((x * 5 + y * 3 + c) % 17) as f32 / 16.0).unwrap())
+                .collect()
+        };
+        let cases = [
+            ("resize:width=11,height=20,fit=fill", Layout::Rgb),
+            ("resize:width=90,height=13,fit=fill,filter=bicubic", Layout::Rgb),
+            ("resize:width=12,height=70,fit=fill", Layout::Rgb),
+            ("resize:width=11,height=9,fit=fill", Layout::Rgba),
+            ("resize:width=11,height=9,fit=fill,filter=nearest", Layout::Rgb),
+        ];
+        assert!(Resampler::new(37, 29, 11, 20, Filter::Lanczos3).rows_first());
+        assert!(!Resampler::new(37, 29, 90, 13, Filter::Bicubic).rows_first());
+        for (step, layout) in cases {
+            let r = Raster::new(planes(layout.channels()), layout, Encoding::Linear).unwrap();
+            let op = crate::pipeline::Step::parse(step).unwrap().op;
+            let maps: [&dyn SampleMap; 2] = [&SquarePlus, &SquarePlus];
+            let fused = op.apply_after_maps(r.clone(), &maps).unwrap();
+            let separate = op.apply(apply_sample_maps(r, &maps)).unwrap();
+            for (a, b) in fused.planes().iter().zip(separate.planes()) {
+                assert!(
+                    a.as_slice().iter().zip(b.as_slice()).all(|(x, y)| x.to_bits() == y.to_bits()),
+                    "{step}"
+                );
+            }
+        }
     }
 
     #[test]

@@ -977,26 +977,15 @@ fn blend_maps(out: &mut [f32], top: &[f32], bottom: &[f32], fy: f32) {
 /// through the four tile maps `[top left, top right, bottom left, bottom
 /// right]` (each `bins` long) with bilinear weights `fx` (per column) and `fy`:
 /// left = m00 + (m10 − m00)·fy, right = m01 + (m11 − m01)·fy, out = left +
-/// (right − left)·fx. NaN stays NaN. Branch-free, so it compiles to vector
-/// gathers where the CPU has them (run-time dispatch; no fused multiply-add,
-/// so every CPU gives the same result). Bins as in [`unit_bin`].
+/// (right − left)·fx. Branch-free, so it compiles to vector gathers where the
+/// CPU has them (run-time dispatch; no fused multiply-add, so every CPU gives
+/// the same result).
 #[multiversion::multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
 fn interpolate_run(row: &mut [f32], fx: &[f32], maps: [&[f32]; 4], fy: f32) {
     let [m00, m01, m10, m11] = maps;
     let bins = m00.len();
     let (m01, m10, m11) = (&m01[..bins], &m10[..bins], &m11[..bins]);
-    let Some(last) = bins.checked_sub(1) else { return };
-    let scale = bins as f32;
-    for (o, &fx) in row.iter_mut().zip(fx) {
-        let v = *o;
-        // The min is a no-op (unit_bin stays within `last`) that shows the
-        // compiler the index is in bounds.
-        let b = (unit_bin(v, scale, last as u32) as usize).min(last);
-        let left = m00[b] + (m10[b] - m00[b]) * fy;
-        let right = m01[b] + (m11[b] - m01[b]) * fy;
-        let out = left + (right - left) * fx;
-        *o = if v.is_nan() { v } else { out };
-    }
+    map_run(row, fx, bins, |b| (m00[b] + (m10[b] - m00[b]) * fy, m01[b] + (m11[b] - m01[b]) * fy));
 }
 
 /// [`interpolate_run`] with the maps of the left and right tile columns
@@ -1006,12 +995,22 @@ fn interpolate_run(row: &mut [f32], fx: &[f32], maps: [&[f32]; 4], fy: f32) {
 fn interpolate_run_between(row: &mut [f32], fx: &[f32], left: &[f32], right: &[f32]) {
     let bins = left.len();
     let right = &right[..bins];
+    map_run(row, fx, bins, |b| (left[b], right[b]));
+}
+
+/// The loop both interpolations share: each sample's bin `b` ([`unit_bin`]
+/// among `bins`), its left and right map values `at(b)`, and out = left +
+/// (right − left)·fx; NaN stays NaN. `at` is called with `b < bins` only.
+#[inline(always)]
+fn map_run(row: &mut [f32], fx: &[f32], bins: usize, at: impl Fn(usize) -> (f32, f32)) {
     let Some(last) = bins.checked_sub(1) else { return };
     let scale = bins as f32;
     for (o, &fx) in row.iter_mut().zip(fx) {
         let v = *o;
-        let b = (unit_bin(v, scale, last as u32) as usize).min(last);
-        let out = left[b] + (right[b] - left[b]) * fx;
+        // The min is a no-op (unit_bin stays within `last`) that shows the
+        // compiler the index is in bounds.
+        let (left, right) = at((unit_bin(v, scale, last as u32) as usize).min(last));
+        let out = left + (right - left) * fx;
         *o = if v.is_nan() { v } else { out };
     }
 }

@@ -111,61 +111,36 @@ pub fn weighted_gather_lanes(
     }
 }
 
-/// A sample type rows are interleaved into: f32 itself, or f64 for running
-/// sums.
-pub trait LaneSample: Copy {
-    fn from_f32(v: f32) -> Self;
-    fn to_f32(self) -> f32;
-}
-
-impl LaneSample for f32 {
-    fn from_f32(v: f32) -> f32 {
-        v
-    }
-    fn to_f32(self) -> f32 {
-        self
-    }
-}
-
-impl LaneSample for f64 {
-    fn from_f32(v: f32) -> f64 {
-        f64::from(v)
-    }
-    fn to_f32(self) -> f32 {
-        self as f32
-    }
-}
-
 /// `lanes[x][l] = rows[l·w + x]` for the rows of `rows` (`w` samples each, at
 /// most LANES rows); lanes past them are left alone. A full group is read
 /// LANES columns at a time, so each lane vector is written whole.
 #[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-pub fn interleave<T: LaneSample>(rows: &[f32], w: usize, lanes: &mut [[T; LANES]]) {
+pub fn interleave(rows: &[f32], w: usize, lanes: &mut [[f32; LANES]]) {
     let lanes = &mut lanes[..w];
     if rows.len() == LANES * w {
         let r: [&[f32]; LANES] = std::array::from_fn(|l| &rows[l * w..(l + 1) * w]);
         for (x, e) in lanes.iter_mut().enumerate() {
-            *e = std::array::from_fn(|l| T::from_f32(r[l][x]));
+            *e = std::array::from_fn(|l| r[l][x]);
         }
     } else {
         for (l, row) in rows.chunks_exact(w).enumerate() {
             for (e, &v) in lanes.iter_mut().zip(row) {
-                e[l] = T::from_f32(v);
+                e[l] = v;
             }
         }
     }
 }
 
-/// `rows[l·w + x] = lanes[x][l]` (rounded to f32), for the rows of `rows`: a
+/// `rows[l·w + x] = lanes[x][l]`, for the rows of `rows`: a
 /// block of columns at a time, so the block's lanes stay in L1 while each row
 /// takes its part.
 #[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-pub fn deinterleave<T: LaneSample>(lanes: &[[T; LANES]], rows: &mut [f32], w: usize) {
+pub fn deinterleave(lanes: &[[f32; LANES]], rows: &mut [f32], w: usize) {
     const BLOCK: usize = 64;
     for (b, block) in lanes[..w].chunks(BLOCK).enumerate() {
         for (l, row) in rows.chunks_exact_mut(w).enumerate() {
             for (o, e) in row[b * BLOCK..].iter_mut().zip(block) {
-                *o = e[l].to_f32();
+                *o = e[l];
             }
         }
     }

@@ -164,10 +164,11 @@ fn horizontal(src: &Plane, wx: &Weights, out_w: usize, maps: &[&dyn SampleMap]) 
 }
 
 /// Resamples every column to `out_h` samples, as weighted sums of whole rows
-/// (one pass per output row, see [`rows::weighted_rows`]).
+/// (one pass per output row, see [`rows::weighted_rows`], which writes every
+/// sample of the row, so the plane needs no clearing first).
 fn vertical(src: &Plane, wy: &Weights, out_h: usize) -> Result<Plane, Error> {
     let w = src.width();
-    let mut out = Plane::zeros(w, out_h)?;
+    let mut out = Plane::for_overwrite(w, out_h)?;
     tile::for_each_band(&mut out, tile::band_rows(w, 0), |y0, band| {
         let mut taps: Vec<&[f32]> = Vec::with_capacity(wy.taps);
         for (i, row) in band.chunks_exact_mut(w).enumerate() {

@@ -7,6 +7,7 @@ pub(crate) mod recycle;
 pub mod transform;
 
 pub use plane::Plane;
+pub(crate) use plane::all_finite;
 
 use crate::error::Error;
 

@@ -145,7 +145,7 @@ fn checked_len(width: usize, height: usize) -> Result<usize, Error> {
 /// vectorises (the chunks of [`Plane::all_finite`] still stop early),
 /// compiled per instruction set.
 #[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-fn all_finite(c: &[f32]) -> bool {
+pub fn all_finite(c: &[f32]) -> bool {
     c.iter().fold(true, |ok, v| ok & v.is_finite())
 }
 

@@ -140,13 +140,12 @@ impl Operator for Gauss {
     fn apply(&self, raster: Raster) -> Result<Raster, Error> {
         filter_planes(raster, |p| {
             Ok(match self.fast {
-                Some(b) if p.all_finite() => cascade_gauss(p, b, self.border),
-                Some(b) => {
+                Some(b) => cascade_gauss(p, b, self.border).unwrap_or_else(|| {
                     // Running sums would carry a NaN past its window: apply the
                     // cascade's own kernel directly instead.
                     let k = fastgauss::kernel(b);
                     correlate_separable(p, &k, &k, self.border)
-                }
+                }),
                 None => correlate_separable(p, &self.kernel, &self.kernel, self.border),
             })
         })

@@ -2,13 +2,12 @@
 //! extended box filters run by running sums. Only the cascade lives here; the
 //! choice between it and the exact kernel is `Gauss`'s.
 
-use multiversion::multiversion;
-
 use std::sync::atomic::{AtomicBool, Ordering};
 
+use multiversion::multiversion;
+
 use super::rows::{LANES, deinterleave, interleave};
-use crate::raster::Plane;
-use crate::raster::all_finite;
+use crate::raster::{Plane, all_finite};
 use crate::tile::{self, Border};
 
 /// Box passes in the cascade. Five keep the 2-D kernel within an L1 distance
@@ -151,15 +150,19 @@ fn cascade_lanes<'a, const N: usize>(
 }
 
 /// The Gaussian of `src` by `PASSES` extended boxes along each axis, or
-/// `None` if `src` holds a NaN or an infinity: a running sum would carry it
-/// past its window (the caller then applies the cascade's kernel directly).
-/// The check rides on the vertical pass's copy of the source, on data still
-/// in cache, so a finite plane is read from memory once, not twice (σ = 32 on
-/// 4000×3000 RGB, one thread, `perf`: a separate scan took 5 % of the step's
-/// samples, the check in the copy takes 2 %). The border rule is applied once, to the source (a halo of `PASSES·(r+1)`), and
-/// the passes run in valid mode, so every rule means what it means for the
-/// exact kernel. Everything is f32: running sums summed afresh every
-/// [`RESTART`] samples (their rounding is bounded by [`drift_bound`]).
+/// `None` if `src` (or a constant border's value) holds a NaN or an
+/// infinity: a running sum would carry it past its window (the caller then
+/// applies the cascade's kernel directly). The check rides on the vertical
+/// pass's copy of the source, on data still in cache, so a finite plane is
+/// read from memory once, not twice (σ = 32 on 4000×3000 RGB, one thread,
+/// `perf`: a separate scan took 5 % of the step's samples, the check in the
+/// copy takes 2 %).
+///
+/// The border rule is applied once, to the source (a halo of
+/// `PASSES·(r+1)`), and the passes run in valid mode, so every rule means
+/// what it means for the exact kernel. Everything is f32: running sums
+/// summed afresh every [`RESTART`] samples (their rounding is bounded by
+/// [`drift_bound`]).
 ///
 /// Both axes run on lane vectors ([`pass_lanes`]): each band's columns are
 /// taken [`COLUMNS`] at a time down the band and its halo (a lane vector is

@@ -209,9 +209,10 @@ pub fn cascade_gauss(src: &Plane, b: ExtendedBox, border: Border) -> Option<Plan
                     copy_group(&mut first[k][..n], &row[xs..xs + n]);
                 }
             }
-            // every sample of the plane is copied by some band (lanes past
-            // the image hold finite values), checked while still in cache
-            if !firsts.iter().all(|first| all_finite(first.as_flattened())) {
+            // every sample of the plane is copied by some band, and checked
+            // here while still in cache (lanes past the image hold values
+            // already checked); buffers past the edge groups are stale
+            if !firsts[..groups.len()].iter().all(|first| all_finite(first.as_flattened())) {
                 non_finite.store(true, Ordering::Relaxed);
                 return;
             }

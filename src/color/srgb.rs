@@ -17,6 +17,8 @@ use std::sync::OnceLock;
 
 use multiversion::multiversion;
 
+use crate::ops::CodeTable;
+
 const DECODE_BREAK: f64 = 0.04045;
 const ENCODE_BREAK: f64 = 0.0031308;
 const SLOPE: f64 = 12.92;
@@ -73,6 +75,16 @@ pub fn decode_table(levels: u32) -> Option<&'static [f32]> {
     }
 }
 
+/// The decode table for `levels` (255 or 65535) as a [`CodeTable`], the
+/// lookup [`decode_in_place`] does for those levels.
+pub fn decode_code_table(levels: u32) -> Option<CodeTable> {
+    match levels {
+        255 => decode_table_u8().try_into().ok().map(CodeTable::U8),
+        65535 => decode_table_u16().try_into().ok().map(CodeTable::U16),
+        _ => None,
+    }
+}
+
 /// Decodes encoded samples to linear light in place. When `levels` is `Some(n)`
 /// and a table exists for `n`, each sample is taken to be an exact code `k/n` and
 /// looked up (`k = round(c·n)`), which equals the formula to within its `f32` rounding.
@@ -87,8 +99,11 @@ pub fn decode_in_place(samples: &mut [f32], levels: Option<u32>) {
 /// `s ← table[round(s · (N − 1))]`, for `N` a power of two up to 2¹⁶, a
 /// block of samples at a time: their indices first ([`table_indices`], vector
 /// arithmetic), then one plain load per sample. Vector gathers are left out on
-/// purpose: on the development machine's Xeon they made this pass slower than
-/// the loads one by one (`perf`: 15 % of a linear-light resize).
+/// purpose: they made this pass slower than the loads one by one on a Xeon
+/// (`perf`: 15 % of a linear-light resize) and on a Zen 4 (36 M samples on one
+/// thread: loads 16 ms, AVX2 gathers 18 ms, AVX-512 gathers 20 ms; a
+/// 256-entry lookup by eight AVX-512 two-table permutes took 13.6 ms, too
+/// little a gain for the hand-written intrinsics it needs).
 fn lookup<const N: usize>(samples: &mut [f32], table: &[f32]) {
     const BLOCK: usize = 256;
     let Ok(table) = <&[f32; N]>::try_from(table) else {
@@ -110,7 +125,7 @@ fn lookup<const N: usize>(samples: &mut [f32], table: &[f32]) {
 /// `k + 2²³` is exact and its low mantissa bits are `k`: an index computed in
 /// vector registers (a saturating `as` cast is not).
 #[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
-fn table_indices<const N: usize>(samples: &[f32], indices: &mut [u16; 256]) {
+pub(crate) fn table_indices<const N: usize>(samples: &[f32], indices: &mut [u16; 256]) {
     debug_assert!(N.is_power_of_two() && N <= 1 << 16);
     let scale = (N - 1) as f32;
     for (k, &s) in indices.iter_mut().zip(samples) {

@@ -84,6 +84,23 @@ pub trait SampleMap: Send + Sync {
     /// its own input sample only, so any split of a plane into slices gives
     /// the same result.
     fn map(&self, samples: &mut [f32]);
+
+    /// The table this map looks samples up in, when it is exactly a lookup
+    /// of codes `k / (N − 1)` (index `round(v · (N − 1))` clamped to the
+    /// table, as [`crate::color::srgb::decode_in_place`] does): then an
+    /// operator may look samples up while it moves them (see
+    /// [`crate::ops::filter::rows::interleave_through_table`]) instead of
+    /// calling [`SampleMap::map`]. None by default.
+    fn code_table(&self) -> Option<CodeTable> {
+        None
+    }
+}
+
+/// A lookup table of a [`SampleMap`] over 8- or 16-bit codes.
+#[derive(Clone, Copy)]
+pub enum CodeTable {
+    U8(&'static [f32; 256]),
+    U16(&'static [f32; 65536]),
 }
 
 /// Samples per chunk when point functions run in parallel: 256 KiB of `f32`,

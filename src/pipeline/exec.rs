@@ -9,7 +9,7 @@ use std::str::FromStr;
 use super::Pipeline;
 use crate::color::srgb;
 use crate::error::Error;
-use crate::ops::{Domain, SampleMap, apply_sample_maps};
+use crate::ops::{CodeTable, Domain, SampleMap, apply_sample_maps};
 use crate::raster::{Encoding, Raster};
 
 /// Which domain steps work in.
@@ -57,6 +57,10 @@ struct ToLinear {
 impl SampleMap for ToLinear {
     fn map(&self, samples: &mut [f32]) {
         srgb::decode_in_place(samples, self.levels);
+    }
+
+    fn code_table(&self) -> Option<CodeTable> {
+        srgb::decode_code_table(self.levels?)
     }
 }
 

@@ -6,6 +6,9 @@
 
 use multiversion::multiversion;
 
+use crate::color::srgb;
+use crate::ops::CodeTable;
+
 /// `acc[x] = w · a[x]`.
 #[multiversion(targets("x86_64+avx512f+avx512bw+avx512vl+avx2+fma", "x86_64+avx2+fma"))]
 pub fn scale(acc: &mut [f32], w: f32, a: &[f32]) {
@@ -131,6 +134,53 @@ pub fn interleave(rows: &[f32], w: usize, lanes: &mut [[f32; LANES]]) {
     }
 }
 
+/// [`interleave`] with each sample looked up in `table` on the way:
+/// `lanes[x][l] = table[round(rows[l·w + x] · (N − 1))]`, the index clamped
+/// to the table, exactly as [`SampleMap::map`] of a map whose
+/// [`SampleMap::code_table`] this is. Indices are computed a block of each
+/// row at a time in vector registers; the loads that follow fill the lane
+/// vectors directly, so the lookup takes the place of the interleave's
+/// shuffles rather than adding a pass (on a linear-light 4000×3000 RGB → 1000×750
+/// reduction the separate lookup was a fifth of the time, `perf`).
+///
+/// [`SampleMap::map`]: crate::ops::SampleMap::map
+/// [`SampleMap::code_table`]: crate::ops::SampleMap::code_table
+pub fn interleave_through_table(rows: &[f32], w: usize, lanes: &mut [[f32; LANES]], table: CodeTable) {
+    match table {
+        CodeTable::U8(t) => interleave_looked_up::<256>(rows, w, lanes, t),
+        CodeTable::U16(t) => interleave_looked_up::<65536>(rows, w, lanes, t),
+    }
+}
+
+fn interleave_looked_up<const N: usize>(
+    rows: &[f32],
+    w: usize,
+    lanes: &mut [[f32; LANES]],
+    table: &[f32; N],
+) {
+    const BLOCK: usize = 256;
+    let n = rows.len() / w.max(1);
+    let mut indices = [[0u16; BLOCK]; LANES];
+    for (b, block) in lanes[..w].chunks_mut(BLOCK).enumerate() {
+        let x0 = b * BLOCK;
+        for (l, idx) in indices.iter_mut().enumerate().take(n) {
+            srgb::table_indices::<N>(&rows[l * w + x0..l * w + x0 + block.len()], idx);
+        }
+        let at = |l: usize, x: usize| table[usize::from(indices[l][x]) & (N - 1)];
+        if n == LANES {
+            for (x, e) in block.iter_mut().enumerate() {
+                *e = std::array::from_fn(|l| at(l, x));
+            }
+        } else {
+            for (x, e) in block.iter_mut().enumerate() {
+                for (l, v) in e.iter_mut().enumerate().take(n) {
+                    *v = at(l, x);
+                }
+            }
+        }
+    }
+}
+
 /// `rows[l·w + x] = lanes[x][l]`, for the rows of `rows`: a
 /// block of columns at a time, so the block's lanes stay in L1 while each row
 /// takes its part.
@@ -149,6 +199,41 @@ pub fn deinterleave(lanes: &[[f32; LANES]], rows: &mut [f32], w: usize) {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn interleave_through_a_table_equals_interleave_then_the_lookup() {
+        // 8- and 16-bit tables; full and short groups; widths across the
+        // index block of 256; samples between codes, out of range, ±∞ and NaN.
+        let odd = [f32::NAN, f32::INFINITY, f32::NEG_INFINITY, -0.2, 1.7, 0.5 / 255.0, 0.999_9];
+        for levels in [255, 65535] {
+            let table = srgb::decode_code_table(levels).unwrap();
+            for w in [1, 255, 256, 257, 600] {
+                for n in [1, 5, LANES] {
+                    let rows: Vec<f32> = (0..n * w)
+                        .map(|i| if i % 13 == 0 { odd[i / 13 % odd.len()] } else { (i % 301) as f32 / 300.0 })
+                        .collect();
+                    let mut want = vec![[-1.0f32; LANES]; w];
+                    interleave(&rows, w, &mut want);
+                    let looked_up: Vec<f32> = want
+                        .iter()
+                        .flat_map(|e| {
+                            let mut e = *e;
+                            srgb::decode_in_place(&mut e[..n], Some(levels));
+                            e
+                        })
+                        .collect();
+                    let mut got = vec![[-1.0f32; LANES]; w];
+                    interleave_through_table(&rows, w, &mut got, table);
+                    let bits = |v: &[f32]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+                    assert_eq!(
+                        bits(got.as_flattened()),
+                        bits(&looked_up),
+                        "levels {levels}, w {w}, {n} rows"
+                    );
+                }
+            }
+        }
+    }
 
     #[test]
     fn weighted_rows_is_scale_then_add_scaled_bit_for_bit() {

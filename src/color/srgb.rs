@@ -66,17 +66,8 @@ pub fn decode_table_u16() -> &'static [f32] {
     TABLE.get_or_init(|| build_decode_table(65535))
 }
 
-/// The decode table for `levels` (255 or 65535), if there is one.
-pub fn decode_table(levels: u32) -> Option<&'static [f32]> {
-    match levels {
-        255 => Some(decode_table_u8()),
-        65535 => Some(decode_table_u16()),
-        _ => None,
-    }
-}
-
-/// The decode table for `levels` (255 or 65535) as a [`CodeTable`], the
-/// lookup [`decode_in_place`] does for those levels.
+/// The decode table for `levels` (255 or 65535), if there is one: the lookup
+/// [`decode_in_place`] does for those levels.
 pub fn decode_code_table(levels: u32) -> Option<CodeTable> {
     match levels {
         255 => decode_table_u8().try_into().ok().map(CodeTable::U8),
@@ -89,10 +80,10 @@ pub fn decode_code_table(levels: u32) -> Option<CodeTable> {
 /// and a table exists for `n`, each sample is taken to be an exact code `k/n` and
 /// looked up (`k = round(c·n)`), which equals the formula to within its `f32` rounding.
 pub fn decode_in_place(samples: &mut [f32], levels: Option<u32>) {
-    match levels {
-        Some(255) => lookup::<256>(samples, decode_table_u8()),
-        Some(65535) => lookup::<65536>(samples, decode_table_u16()),
-        _ => samples.iter_mut().for_each(|s| *s = decode(*s)),
+    match levels.and_then(decode_code_table) {
+        Some(CodeTable::U8(table)) => lookup(samples, table),
+        Some(CodeTable::U16(table)) => lookup(samples, table),
+        None => samples.iter_mut().for_each(|s| *s = decode(*s)),
     }
 }
 
@@ -104,12 +95,8 @@ pub fn decode_in_place(samples: &mut [f32], levels: Option<u32>) {
 /// thread: loads 16 ms, AVX2 gathers 18 ms, AVX-512 gathers 20 ms; a
 /// 256-entry lookup by eight AVX-512 two-table permutes took 13.6 ms, too
 /// little a gain for the hand-written intrinsics it needs).
-fn lookup<const N: usize>(samples: &mut [f32], table: &[f32]) {
+fn lookup<const N: usize>(samples: &mut [f32], table: &[f32; N]) {
     const BLOCK: usize = 256;
-    let Ok(table) = <&[f32; N]>::try_from(table) else {
-        samples.iter_mut().for_each(|s| *s = decode(*s));
-        return;
-    };
     let mut indices = [0u16; BLOCK];
     for block in samples.chunks_mut(BLOCK) {
         table_indices::<N>(block, &mut indices);
